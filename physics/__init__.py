@@ -1,0 +1,40 @@
+"""Refrigeration-cycle physics: refrigerant properties, cycle reconstruction, virtual sensors.
+
+Pure functions over numpy arrays and pandas objects, SI units throughout (Pa absolute, K, J/kg).
+"""
+
+from rimewatch.physics.refrigerant import (
+    SUPPORTED,
+    Refrigerant,
+    UnsupportedRefrigerantError,
+    critical_point,
+    density,
+    enthalpy,
+    entropy,
+    get_refrigerant,
+    isentropic_state,
+    latent_heat,
+    quality,
+    saturated_enthalpy,
+    saturated_entropy,
+    saturation_pressure,
+    saturation_temperature,
+)
+
+__all__ = [
+    "SUPPORTED",
+    "Refrigerant",
+    "UnsupportedRefrigerantError",
+    "critical_point",
+    "density",
+    "enthalpy",
+    "entropy",
+    "get_refrigerant",
+    "isentropic_state",
+    "latent_heat",
+    "quality",
+    "saturated_enthalpy",
+    "saturated_entropy",
+    "saturation_pressure",
+    "saturation_temperature",
+]

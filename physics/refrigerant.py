@@ -1,0 +1,294 @@
+"""Refrigerant properties: a thin, named layer over CoolProp's full equations of state.
+
+All quantities are SI and absolute: pressure [Pa], temperature [K], specific enthalpy [J/kg],
+specific entropy [J/(kg K)], density [kg/m^3]. Every function accepts scalars or array-likes and
+returns a float or a numpy array of the same shape. A state CoolProp cannot compute (outside the
+equation of state's range, two-phase where a single phase was asked for) comes back as NaN, never as
+an exception, so one bad sample cannot stop a batch.
+
+Enthalpy and entropy use the IIR reference state (h = 200 kJ/kg, s = 1 kJ/(kg K) for saturated
+liquid at 0 degC) for every supported refrigerant, ammonia included; CoolProp's default for ammonia
+differs, so this module sets it once on import.
+
+References
+----------
+.. [1] Bell, I. H., Wronski, J., Quoilin, S., Lemort, V. (2014). "Pure and Pseudo-pure Fluid
+   Thermophysical Property Evaluation and the Open-Source Thermophysical Property Library CoolProp."
+   Ind. Eng. Chem. Res. 53(6): 2498-2508. :doi:`10.1021/ie4033999`
+.. [2] ANSI/ASHRAE Standard 34-2022, "Designation and Safety Classification of Refrigerants".
+"""
+
+from __future__ import annotations
+
+import threading
+from dataclasses import dataclass
+from typing import Literal
+
+import CoolProp
+import CoolProp.CoolProp as CP
+import numpy as np
+
+Phase = Literal["dew", "bubble"]
+
+
+@dataclass(frozen=True)
+class Refrigerant:
+    """A supported refrigerant.
+
+    Attributes
+    ----------
+    designation : ASHRAE 34 designation, e.g. ``"R410A"``.
+    coolprop_name : CoolProp's fluid name.
+    safety_class : ASHRAE 34 safety group (toxicity A/B, flammability 1, 2L, 2, 3) [2].
+    blend : ``None`` for a single compound, else ``"azeotropic"``, ``"near-azeotropic"`` or
+        ``"zeotropic"``; zeotropic blends have a temperature glide, so their dew and bubble points
+        at one pressure differ.
+    """
+
+    designation: str
+    coolprop_name: str
+    safety_class: str
+    blend: str | None = None
+
+    @property
+    def flammable(self) -> bool:
+        """True for ASHRAE 34 flammability classes 2L, 2 and 3."""
+        return self.safety_class[1:] != "1"
+
+    @property
+    def toxic(self) -> bool:
+        """True for ASHRAE 34 toxicity class B (higher toxicity)."""
+        return self.safety_class.startswith("B")
+
+    @property
+    def critical_temperature(self) -> float:
+        """Critical temperature [K]."""
+        return critical_point(self)[0]
+
+    @property
+    def critical_pressure(self) -> float:
+        """Critical pressure [Pa]."""
+        return critical_point(self)[1]
+
+
+# Safety classes from ASHRAE 34 [2], Tables 4-1 and 4-2.
+SUPPORTED: dict[str, Refrigerant] = {
+    r.designation: r
+    for r in (
+        Refrigerant("R22", "R22", "A1"),
+        Refrigerant("R32", "R32", "A2L"),
+        Refrigerant("R134a", "R134a", "A1"),
+        Refrigerant("R290", "n-Propane", "A3"),
+        Refrigerant("R404A", "R404A", "A1", "near-azeotropic"),
+        Refrigerant("R407C", "R407C", "A1", "zeotropic"),
+        Refrigerant("R410A", "R410A", "A1", "near-azeotropic"),
+        Refrigerant("R507A", "R507A", "A1", "azeotropic"),
+        Refrigerant("R600a", "IsoButane", "A3"),
+        Refrigerant("R717", "Ammonia", "B2L"),
+        Refrigerant("R744", "CarbonDioxide", "A1"),
+        Refrigerant("R1234yf", "R1234yf", "A2L"),
+        Refrigerant("R1234ze(E)", "R1234ze(E)", "A2L"),
+    )
+}
+
+_ALIASES = {
+    "R1234ZE": "R1234ze(E)",
+    "PROPANE": "R290",
+    "ISOBUTANE": "R600a",
+    "AMMONIA": "R717",
+    "CO2": "R744",
+    "CARBONDIOXIDE": "R744",
+    "NPROPANE": "R290",
+}
+
+
+class UnsupportedRefrigerantError(ValueError):
+    """Raised for a refrigerant name rimewatch cannot compute."""
+
+
+def _normalise(name: str) -> str:
+    return name.strip().upper().replace("-", "").replace(" ", "").replace("_", "")
+
+
+_BY_KEY = {_normalise(d): r for d, r in SUPPORTED.items()}
+_BY_KEY.update({_normalise(alias): SUPPORTED[d] for alias, d in _ALIASES.items()})
+
+
+def get_refrigerant(name: str | Refrigerant) -> Refrigerant:
+    """Look up a supported refrigerant by designation (``"R410A"``, ``"R-410A"``, ``"r410a"``).
+
+    Raises
+    ------
+    UnsupportedRefrigerantError
+        When the name is not supported; the message lists the supported designations.
+    """
+    if isinstance(name, Refrigerant):
+        return name
+    found = _BY_KEY.get(_normalise(str(name)))
+    if found is None:
+        raise UnsupportedRefrigerantError(
+            f"refrigerant {name!r} is not supported; supported: {', '.join(SUPPORTED)}"
+        )
+    return found
+
+
+CP.set_reference_state("Ammonia", "IIR")
+COOLPROP_VERSION: str = CoolProp.__version__
+
+_local = threading.local()
+
+
+def _state(refrigerant: Refrigerant) -> CP.AbstractState:
+    """This thread's full-equation-of-state AbstractState for the refrigerant (reused)."""
+    cache = _local.__dict__.setdefault("states", {})
+    state = cache.get(refrigerant.designation)
+    if state is None:
+        state = CP.AbstractState("HEOS", refrigerant.coolprop_name)
+        cache[refrigerant.designation] = state
+    return state
+
+
+_PHASES = {"gas": CP.iphase_gas, "liquid": CP.iphase_liquid, None: None}
+
+
+def _evaluate(refrigerant, pair, first, second, outputs, phase=None):
+    """Flash each (first, second) pair with CoolProp and read ``outputs`` (AbstractState methods).
+
+    Returns an array of shape ``(len(outputs),) + broadcast shape``; NaN where CoolProp fails.
+    """
+    fluid = get_refrigerant(refrigerant)
+    state = _state(fluid)
+    a, b = np.broadcast_arrays(np.asarray(first, dtype=float), np.asarray(second, dtype=float))
+    result = np.full((len(outputs), *a.shape), np.nan)
+    imposed = _PHASES[phase]
+    if imposed is not None:
+        state.specify_phase(imposed)
+    try:
+        for index in np.ndindex(a.shape):
+            x, y = a[index], b[index]
+            if not (np.isfinite(x) and np.isfinite(y)):
+                continue
+            try:
+                state.update(pair, x, y)
+            except ValueError:
+                continue
+            for k, name in enumerate(outputs):
+                result[(k, *index)] = getattr(state, name)()
+    finally:
+        if imposed is not None:
+            state.unspecify_phase()
+    return result
+
+
+def _scalar_or_array(values: np.ndarray):
+    return float(values) if values.ndim == 0 else values
+
+
+def _quality(phase: Phase) -> float:
+    if phase not in ("dew", "bubble"):
+        raise ValueError(f"phase must be 'dew' or 'bubble', not {phase!r}")
+    return 1.0 if phase == "dew" else 0.0
+
+
+def critical_point(refrigerant: str | Refrigerant) -> tuple[float, float]:
+    """Critical temperature [K] and critical pressure [Pa] of the refrigerant's equation of state."""
+    state = _state(get_refrigerant(refrigerant))
+    return state.T_critical(), state.p_critical()
+
+
+def saturation_temperature(refrigerant, pressure, phase: Phase = "dew"):
+    """Saturation temperature [K] at ``pressure`` [Pa].
+
+    ``phase="dew"`` gives the dew point (saturated vapour: use it for superheat and for the
+    evaporating and condensing temperatures of compressor maps); ``"bubble"`` the bubble point
+    (saturated liquid: use it for subcooling). They differ for zeotropic blends. NaN at or above the
+    critical pressure, where no saturation exists.
+    """
+    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("T",))[0]
+    return _scalar_or_array(out)
+
+
+def saturation_pressure(refrigerant, temperature, phase: Phase = "dew"):
+    """Saturation pressure [Pa] at ``temperature`` [K] (dew or bubble point, see above)."""
+    out = _evaluate(refrigerant, CP.QT_INPUTS, _quality(phase), temperature, ("p",))[0]
+    return _scalar_or_array(out)
+
+
+def saturated_enthalpy(refrigerant, pressure, phase: Phase = "dew"):
+    """Enthalpy [J/kg] of saturated vapour (``"dew"``) or liquid (``"bubble"``) at ``pressure`` [Pa]."""
+    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("hmass",))[0]
+    return _scalar_or_array(out)
+
+
+def saturated_entropy(refrigerant, pressure, phase: Phase = "dew"):
+    """Entropy [J/(kg K)] of saturated vapour or liquid at ``pressure`` [Pa]."""
+    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("smass",))[0]
+    return _scalar_or_array(out)
+
+
+def latent_heat(refrigerant, temperature):
+    """Enthalpy of vaporisation h_dew - h_bubble [J/kg] at saturation temperature [K].
+
+    For a zeotropic blend the two points sit at different pressures (CoolProp's pseudo-pure
+    convention at equal temperature).
+    """
+    vapour = _evaluate(refrigerant, CP.QT_INPUTS, 1.0, temperature, ("hmass",))[0]
+    liquid = _evaluate(refrigerant, CP.QT_INPUTS, 0.0, temperature, ("hmass",))[0]
+    return _scalar_or_array(vapour - liquid)
+
+
+def _single_phase(refrigerant, pressure, temperature, output: str):
+    """A single-phase property at (P, T): vapour where T is at or above the dew point, else liquid."""
+    fluid = get_refrigerant(refrigerant)
+    p, t = np.broadcast_arrays(np.asarray(pressure, float), np.asarray(temperature, float))
+    t_dew = np.asarray(saturation_temperature(fluid, p, "dew"))
+    vapour = ~(t < t_dew)  # NaN dew point (supercritical) counts as vapour-like
+    out = np.full(p.shape, np.nan)
+    if vapour.any():
+        out[vapour] = _evaluate(fluid, CP.PT_INPUTS, p[vapour], t[vapour], (output,), "gas")[0]
+    liquid = ~vapour
+    if liquid.any():
+        t_bubble = np.asarray(saturation_temperature(fluid, p, "bubble"))
+        below = liquid & (t <= t_bubble)
+        out[below] = _evaluate(fluid, CP.PT_INPUTS, p[below], t[below], (output,), "liquid")[0]
+    return _scalar_or_array(out)
+
+
+def enthalpy(refrigerant, pressure, temperature):
+    """Specific enthalpy [J/kg] of superheated vapour or subcooled liquid at (P [Pa], T [K]).
+
+    NaN inside the two-phase region of a blend (between bubble and dew point), where pressure and
+    temperature do not fix the state's enthalpy alone.
+    """
+    return _single_phase(refrigerant, pressure, temperature, "hmass")
+
+
+def entropy(refrigerant, pressure, temperature):
+    """Specific entropy [J/(kg K)] at (P [Pa], T [K]); single phase only, as :func:`enthalpy`."""
+    return _single_phase(refrigerant, pressure, temperature, "smass")
+
+
+def density(refrigerant, pressure, temperature):
+    """Density [kg/m^3] at (P [Pa], T [K]); single phase only, as :func:`enthalpy`."""
+    return _single_phase(refrigerant, pressure, temperature, "rhomass")
+
+
+def isentropic_state(refrigerant, pressure, entropy_):
+    """End state of an isentropic process: (temperature [K], enthalpy [J/kg]) at (P [Pa], s).
+
+    Used for the isentropic compressor discharge state 2s from the suction entropy s1. Works in the
+    two-phase region too (wet compression of a dry fluid).
+    """
+    out = _evaluate(refrigerant, CP.PSmass_INPUTS, pressure, entropy_, ("T", "hmass"))
+    return _scalar_or_array(out[0]), _scalar_or_array(out[1])
+
+
+def quality(refrigerant, pressure, enthalpy_):
+    """Vapour quality [-] at (P [Pa], h [J/kg]): 0 saturated liquid, 1 saturated vapour.
+
+    Computed as (h - h_bubble) / (h_dew - h_bubble) at the same pressure, so values below 0
+    (subcooled) and above 1 (superheated) are returned as they are rather than clipped.
+    """
+    h_liquid = np.asarray(saturated_enthalpy(refrigerant, pressure, "bubble"))
+    h_vapour = np.asarray(saturated_enthalpy(refrigerant, pressure, "dew"))
+    return _scalar_or_array((np.asarray(enthalpy_, float) - h_liquid) / (h_vapour - h_liquid))

@@ -1,0 +1,1 @@
+"""rimewatch.report"""
