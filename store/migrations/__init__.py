@@ -1,0 +1,1 @@
+"""Alembic migrations of the rimewatch database (run by ``rimewatch.store.connect``)."""

@@ -1,0 +1,94 @@
+"""Writing readings in bulk, idempotently, and reading a unit's points back as one wide frame."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import Connection, Engine, bindparam, text
+
+_INSERT = (
+    "INSERT INTO readings (point_id, ts_ms, value) VALUES ({0}, {0}, {0}) ON CONFLICT DO NOTHING"
+)
+# DB-API parameter style of the driver -> the bulk insert statement
+_INSERT_SQL = {"qmark": _INSERT.format("?"), "format": _INSERT.format("%s")}
+_INSERT_SQL["pyformat"] = _INSERT_SQL["format"]
+
+
+def _insert_many(conn: Connection, rows: Sequence[tuple[int, int, float]]) -> int:
+    sql = _INSERT_SQL[conn.dialect.paramstyle]
+    result = conn.exec_driver_sql(sql, rows)
+    return max(result.rowcount, 0)
+
+
+def write_readings(target: Engine | Connection, rows: Iterable[tuple[int, int, float]]) -> int:
+    """Store readings; a reading already stored (same point and time) is left as it was.
+
+    Parameters
+    ----------
+    target : an Engine (the write runs and commits in its own transaction) or a Connection (the
+        caller commits, e.g. before acknowledging the messages the rows came from).
+    rows : ``(point_id, ts_ms, value)`` with plain Python ``int``, ``int`` [ms since the Unix epoch,
+        UTC] and finite ``float`` [SI]. Validate first: NaN is not a storable value.
+
+    Returns
+    -------
+    int : rows newly stored (duplicates not counted).
+    """
+    rows = rows if isinstance(rows, Sequence) else list(rows)
+    if not rows:
+        return 0
+    if isinstance(target, Engine):
+        with target.begin() as conn:
+            return _insert_many(conn, rows)
+    return _insert_many(target, rows)
+
+
+def to_epoch_ms(moment) -> int:
+    """A timezone-aware instant (datetime, Timestamp, ISO 8601 text with offset) -> epoch [ms]."""
+    stamp = pd.Timestamp(moment)
+    if stamp.tzinfo is None:
+        raise ValueError(f"time {moment!r} has no time zone; give an offset or 'Z' for UTC")
+    return int(stamp.timestamp() * 1000)
+
+
+def read_unit_frame(target: Engine | Connection, unit_id: int, start, end) -> pd.DataFrame:
+    """Readings of every point of one unit in ``[start, end)`` as a wide frame.
+
+    Returns
+    -------
+    DataFrame indexed by UTC time (``datetime64[us, UTC]``, named ``ts``), one float column per
+    point role in point order (retired points included: their history stays), NaN where a point
+    has no sample at that instant.
+    """
+    start_ms, end_ms = to_epoch_ms(start), to_epoch_ms(end)
+    if isinstance(target, Engine):
+        with target.connect() as conn:
+            return _read_unit_frame(conn, unit_id, start_ms, end_ms)
+    return _read_unit_frame(target, unit_id, start_ms, end_ms)
+
+
+def _read_unit_frame(conn: Connection, unit_id: int, start_ms: int, end_ms: int) -> pd.DataFrame:
+    points = conn.execute(
+        text("SELECT id, role FROM points WHERE unit_id = :unit_id ORDER BY id"),
+        {"unit_id": unit_id},
+    ).all()
+    query = text(
+        "SELECT ts_ms, value FROM readings "
+        "WHERE point_id = :point_id AND ts_ms >= :start AND ts_ms < :end ORDER BY ts_ms"
+    ).bindparams(bindparam("point_id"), bindparam("start"), bindparam("end"))
+    columns = {}
+    for point_id, role in points:
+        rows = conn.execute(query, {"point_id": point_id, "start": start_ms, "end": end_ms}).all()
+        data = np.array(rows, dtype=np.float64).reshape(-1, 2)
+        columns[role] = pd.Series(data[:, 1], index=data[:, 0].astype(np.int64))
+    if not columns:
+        return pd.DataFrame(index=_utc_index(np.empty(0, dtype=np.int64)))
+    frame = pd.concat(columns, axis=1, sort=True)
+    frame.index = _utc_index(frame.index.to_numpy(dtype=np.int64))
+    return frame
+
+
+def _utc_index(epoch_ms: np.ndarray) -> pd.DatetimeIndex:
+    return pd.DatetimeIndex(pd.to_datetime(epoch_ms, unit="ms", utc=True).as_unit("us"), name="ts")
