@@ -343,16 +343,19 @@ def from_si(values_si, unit: str, atmospheric_pressure: float = STANDARD_ATMOSPH
 _QUANTITY = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
 
 
-def parse_quantity(text: str, default_unit: str | None = None) -> tuple[float, str]:
+def parse_quantity(
+    text: str, default_unit: str | None = None, kind: str | None = None
+) -> tuple[float, str]:
     """Split a reading such as ``"118 psig"``, ``"118psig"`` or ``"8.2 bar(g)"`` into (value, unit).
 
     The unit comes back in its canonical spelling (``"50 °F"`` -> ``(50.0, "degF")``). A bare
-    number takes ``default_unit`` when given.
+    number takes ``default_unit`` when given. With ``kind`` (e.g. ``"pressure"``) the unit must be
+    of that kind, and error messages list only the units of that kind.
 
     Raises
     ------
     UnitError
-        When the text is not a number followed by an accepted unit.
+        When the text is not a number followed by an accepted unit (of ``kind``).
     """
     match = _QUANTITY.match(text) if isinstance(text, str) else None
     if match is None:
@@ -360,11 +363,20 @@ def parse_quantity(text: str, default_unit: str | None = None) -> tuple[float, s
     number, unit = match.groups()
     if not unit:
         if default_unit is None:
-            raise UnitError(
-                f"{text!r} has no unit; write it with one, e.g. '118 psig' or '10 degC'"
-            )
+            raise UnitError(f"{text!r} has no unit; write one, e.g. '118 psig' or '10 degC'")
         unit = default_unit
-    return float(number), canonical_unit(unit)
+    if kind is None:
+        return float(number), canonical_unit(unit)
+    accepted = ", ".join(units_of_kind(kind))
+    try:
+        name = canonical_unit(unit)
+    except UnitError as error:
+        if _key(unit) in _AMBIGUOUS:
+            raise
+        raise UnitError(f"unknown {kind} unit {unit!r}; accepted: {accepted}") from error
+    if _DEFINITIONS[name].kind != kind:
+        raise UnitError(f"{unit!r} is not a {kind} unit; accepted: {accepted}")
+    return float(number), name
 
 
 def atmospheric_pressure(elevation_m):

@@ -184,6 +184,17 @@ def test_parse_quantity_default_unit_and_errors():
         parse_quantity("")
 
 
+def test_parse_quantity_of_a_kind():
+    assert parse_quantity("340 psig", kind="pressure") == (340.0, "psig")
+    with pytest.raises(UnitError, match=r"'degF' is not a pressure unit; accepted: Pa, kPa"):
+        parse_quantity("95 degF", kind="pressure")
+    with pytest.raises(UnitError) as caught:
+        parse_quantity("95 furlongs", kind="temperature")
+    assert "K, degC, degF" in str(caught.value) and "psig" not in str(caught.value)
+    with pytest.raises(UnitError, match="ambiguous"):
+        parse_quantity("118 psi", kind="pressure")
+
+
 def test_unknown_unit_is_named_and_accepted_units_listed():
     with pytest.raises(UnitError) as caught:
         to_si(1.0, "furlong/fortnight")
