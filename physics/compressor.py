@@ -33,6 +33,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from rimewatch.physics import refrigerant as props
+
 QUANTITIES = ("mass_flow", "power", "current", "capacity")
 N_COEFFICIENTS = 10
 DEFAULT_DENSITY_CORRECTION_FACTOR = 0.75  # F_v of Dabiri and Rice [2]
@@ -757,3 +759,101 @@ def density_corrected_mass_flow(
     return np.asarray(mass_flow_map, float) * dabiri_rice_factor(
         suction_density, rated_suction_density, factor
     )
+
+
+def mass_flow_from_capacity(
+    refrigerant, t_suction_dew, t_discharge_dew, capacity, rated_suction_temp, rated_subcooling
+):
+    """Mass flow [kg/s] behind a rated capacity [W]: m = Q / (h1 - h3) (AHRI 540 rating basis).
+
+    h1 is the suction gas at the rating suction temperature [K] and the suction dew pressure; h3 the
+    liquid leaving the condenser ``rated_subcooling`` [K] below the bubble point at the discharge
+    dew pressure (expansion is isenthalpic, so h4 = h3). Uses CoolProp's full equation of state.
+    """
+    p_s = props.saturation_pressure(refrigerant, t_suction_dew, "dew")
+    p_d = props.saturation_pressure(refrigerant, t_discharge_dew, "dew")
+    h1 = props.enthalpy(refrigerant, p_s, rated_suction_temp)
+    t_liquid = (
+        np.asarray(props.saturation_temperature(refrigerant, p_d, "bubble")) - rated_subcooling
+    )
+    h3 = props.enthalpy(refrigerant, p_d, t_liquid)
+    return np.asarray(capacity, float) / (h1 - h3)
+
+
+def fit_map(
+    suction_temp,
+    discharge_temp,
+    values: Mapping[str, np.ndarray],
+    units: Mapping[str, str],
+    *,
+    refrigerant: str,
+    temperature_unit: str,
+    rated_superheat: float | None = None,
+    rated_return_gas_temp: float | None = None,
+    speed=None,
+    speed_unit: str = "Hz",
+    model: str = "",
+    source: str = "",
+) -> CompressorMap:
+    """Fit a :class:`CompressorMap` to a performance table, one AHRI 540 fit per quantity and speed.
+
+    Parameters
+    ----------
+    suction_temp, discharge_temp : array-like
+        Dew-point temperatures of the table rows, in ``temperature_unit``.
+    values : quantity -> array-like
+        Table columns (``mass_flow``, ``power``, ``current``, ``capacity``); NaN where the table
+        has no value. ``mass_flow`` is required.
+    units : quantity -> unit of that column (see ``QUANTITY_UNITS``).
+    speed : array-like, optional
+        Speed of each row (``speed_unit``) for a variable-speed table; one map per distinct speed.
+
+    The envelope is the convex hull of the table's (S, D) points: the map is never trusted
+    beyond the region its table covers.
+    """
+    s = np.asarray(suction_temp, float).reshape(-1)
+    d = np.asarray(discharge_temp, float).reshape(-1)
+    speeds = [None] if speed is None else sorted(set(np.asarray(speed, float).tolist()))
+    coefficients: dict[str, list[np.ndarray]] = {q: [] for q in values}
+    for level in speeds:
+        rows = np.ones(s.shape, bool) if level is None else np.asarray(speed, float) == level
+        for quantity, column in values.items():
+            try:
+                fitted = fit_ahri540(s[rows], d[rows], np.asarray(column, float)[rows])
+            except ValueError as error:
+                where = quantity if level is None else f"{quantity} at speed {level:g} {speed_unit}"
+                raise CompressorMapError(f"{where}: {error}") from error
+            coefficients[quantity].append(fitted)
+    good = np.isfinite(s) & np.isfinite(d)
+    return CompressorMap(
+        refrigerant=refrigerant,
+        temperature_unit=temperature_unit,
+        units=dict(units),
+        coefficients={q: np.stack(c) for q, c in coefficients.items()},
+        envelope=Envelope(polygon=convex_hull(s[good], d[good])),
+        rated_superheat=rated_superheat,
+        rated_return_gas_temp=rated_return_gas_temp,
+        speeds=() if speed is None else tuple(speeds),
+        speed_unit=speed_unit,
+        model=model,
+        source=source,
+    )
+
+
+def fit_errors(cmap: CompressorMap, suction_temp, discharge_temp, values, speed=None):
+    """Relative errors [%] of a map against table values, in the map's own units.
+
+    Parameters as :func:`fit_map`. Returns quantity -> array of 100 (map - table) / table, NaN
+    where the table has no value.
+    """
+    scale, offset = TEMPERATURE_UNITS[cmap.temperature_unit]
+    t_s = np.asarray(suction_temp, float) * scale + offset
+    t_d = np.asarray(discharge_temp, float) * scale + offset
+    speed_hz = None if speed is None else np.asarray(speed, float) * SPEED_UNITS[cmap.speed_unit]
+    errors = {}
+    for quantity, column in values.items():
+        table = np.asarray(column, float)
+        mapped = cmap.evaluate(quantity, t_s, t_d, speed_hz, extrapolate=True)
+        mapped = mapped / QUANTITY_UNITS[quantity][cmap.units[quantity]]
+        errors[quantity] = 100.0 * (mapped - table) / table
+    return errors
