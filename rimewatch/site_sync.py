@@ -11,7 +11,9 @@ import json
 from sqlalchemy import Engine, select
 from sqlalchemy.orm import Session
 
+from rimewatch.ingest.csv_import import ColumnTarget, CsvFormat
 from rimewatch.site import SiteConfig, UnitConfig
+from rimewatch.store import active_points
 from rimewatch.store.schema import Point, Site, Unit
 
 
@@ -97,6 +99,48 @@ def _apply_points(session: Session, unit: Unit, unit_config: UnitConfig, changes
     for point in points.values():
         if not point.retired:
             point.retired = True
-            changes.append(
-                f"retired point {unit_config.id}/{point.role} (its readings are kept)"
-            )
+            changes.append(f"retired point {unit_config.id}/{point.role} (its readings are kept)")
+
+
+def csv_targets(
+    engine: Engine, config: SiteConfig, unit_id: str | None = None
+) -> tuple[CsvFormat, dict[str, ColumnTarget], int]:
+    """The CSV format, the column -> point mapping (of one unit when ``unit_id`` is given) and
+    the site's database id, for an applied site file.
+
+    Raises
+    ------
+    KeyError
+        When ``unit_id`` is not a unit of the site.
+    """
+    units = [config.unit(unit_id)] if unit_id is not None else config.units
+    stored = {(p.unit_key, p.role): p for p in active_points(engine, site=config.site.name)}
+    columns = {}
+    for unit in units:
+        for point in unit.points:
+            if point.csv_column is not None:
+                info = stored[(unit.id, point.role)]
+                name = f"{unit.id}/{point.role}"
+                columns[point.csv_column] = ColumnTarget(info.id, name, point.role, point.unit)
+    settings = config.csv
+    fmt = CsvFormat(
+        timestamp_column=settings.timestamp_column,
+        timestamp_format=settings.timestamp_format,
+        timezone=config.csv_timezone,
+        delimiter=settings.delimiter,
+        decimal=settings.decimal,
+        encoding=settings.encoding,
+        missing_values=tuple(settings.missing_values),
+        chunk_rows=settings.chunk_rows,
+    )
+    site_id = engine_site_id(engine, config.site.name)
+    return fmt, columns, site_id
+
+
+def engine_site_id(engine: Engine, site_name: str) -> int:
+    """The database id of a site (KeyError when it has not been applied)."""
+    with engine.connect() as conn:
+        site_id = conn.execute(select(Site.id).where(Site.name == site_name)).scalar_one_or_none()
+    if site_id is None:
+        raise KeyError(f"site {site_name!r} is not in the database; run `rimewatch apply` first")
+    return site_id
