@@ -16,6 +16,11 @@ from rimewatch import __version__
 COMMANDS: dict[str, str] = {
     "cycle": "rimewatch.commands.cycle:cycle",
     "demo": "rimewatch.commands.demo:demo",
+    "init": "rimewatch.commands.init:init",
+    "apply": "rimewatch.commands.apply:apply",
+    "import": "rimewatch.commands.import_csv:import_command",
+    "points": "rimewatch.commands.points:points",
+    "quarantine": "rimewatch.commands.quarantine:quarantine",
 }
 
 
