@@ -16,6 +16,7 @@ from rimewatch import __version__
 COMMANDS: dict[str, str] = {
     "cycle": "rimewatch.commands.cycle:cycle",
     "demo": "rimewatch.commands.demo:demo",
+    "map": "rimewatch.commands.map:map_group",
     "init": "rimewatch.commands.init:init",
     "apply": "rimewatch.commands.apply:apply",
     "import": "rimewatch.commands.import_csv:import_command",
