@@ -12,8 +12,9 @@ Accepted payloads (the topic names the point unless an item says otherwise):
   with ``"point": "<unit id>/<role>"`` or ``"topic": "<full topic>"`` and otherwise belongs to the
   message's topic.
 
-A reading is ``(point, ts, value)``: the point's key as given in :class:`PointTarget`, UTC epoch
-seconds as float, and the value in SI (the point's unit converted with ``value * scale + offset``).
+A reading is ``(point, ts_ms, value)``: the point's key as given in :class:`PointTarget`, UTC epoch
+milliseconds as int (the store's time format), and the value in SI (the point's unit converted with
+``value * scale + offset``).
 """
 
 from __future__ import annotations
@@ -25,6 +26,8 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from datetime import UTC, datetime, tzinfo
 from typing import Any
+
+from rimewatch.ingest.units import atmospheric_pressure, to_si, unit_kind
 
 # Plausible ranges in SI per role, [K], [Pa] absolute, [W], [A]. Generous on purpose: they catch
 # garbage (a sensor fault code, a unit mix-up by 1000), not plant faults. Common practice.
@@ -97,14 +100,14 @@ class PointTarget:
         return cls(key, name, role, float(scale), float(offset), on_off, low, high)
 
 
-def affine_from(to_si: Callable[[float], float], unit: str) -> tuple[float, float]:
-    """``(scale, offset)`` of a unit conversion, checked to be affine.
+def affine_from(convert: Callable[[float], float], unit: str) -> tuple[float, float]:
+    """``(scale, offset)`` of a unit conversion ``convert(value) -> SI``, checked to be affine.
 
-    ``to_si(value, unit)`` is the unit layer's converter; it is sampled at 0, 1 and 1000.
+    The conversion is sampled at 0, 1 and 1000; ``unit`` only names it in the error.
     """
-    zero = float(to_si(0.0, unit))
-    scale = float(to_si(1.0, unit)) - zero
-    check = float(to_si(1000.0, unit))
+    zero = float(convert(0.0))
+    scale = float(convert(1.0)) - zero
+    check = float(convert(1000.0))
     if not math.isclose(check, zero + 1000.0 * scale, rel_tol=1e-9, abs_tol=1e-9):
         raise ValueError(f"unit {unit!r} does not convert to SI affinely; cannot precompute it")
     return scale, zero
@@ -194,7 +197,7 @@ class Rejection:
     topic: str
     payload: bytes
     reason: str
-    received_s: float
+    received_ms: int
 
 
 @dataclass
@@ -237,8 +240,8 @@ class PayloadDecoder:
         self,
         topic: str,
         payload: bytes,
-        received_s: float,
-        readings: list[tuple[Any, float, float]],
+        received_ms: int,
+        readings: list[tuple[Any, int, float]],
         rejects: list[Rejection],
     ) -> None:
         """Append the message's readings to ``readings`` and its problems to ``rejects``."""
@@ -250,7 +253,7 @@ class PayloadDecoder:
                     payload[:1024],
                     f"payload of {len(payload)} bytes exceeds the limit of "
                     f"{limits.max_payload_bytes} bytes (first 1024 bytes kept)",
-                    received_s,
+                    received_ms,
                 )
             )
             return
@@ -258,52 +261,52 @@ class PayloadDecoder:
             text = payload.decode()
         except UnicodeDecodeError as exc:
             rejects.append(
-                Rejection(topic, payload, f"payload is not UTF-8 text: {exc}", received_s)
+                Rejection(topic, payload, f"payload is not UTF-8 text: {exc}", received_ms)
             )
             return
         first = text.lstrip()[:1]
         if first not in ("{", "["):
-            self._decode_plain(topic, payload, text, received_s, readings, rejects)
+            self._decode_plain(topic, payload, text, received_ms, readings, rejects)
             return
         try:
             doc = json.loads(text)
         except (ValueError, RecursionError) as exc:
-            rejects.append(Rejection(topic, payload, f"invalid JSON: {exc}", received_s))
+            rejects.append(Rejection(topic, payload, f"invalid JSON: {exc}", received_ms))
             return
         if type(doc) is dict and "readings" in doc:
             doc = doc["readings"]
             if type(doc) is not list:
                 reason = f"'readings' must be a list, got {_json_type(doc)}"
-                rejects.append(Rejection(topic, payload, reason, received_s))
+                rejects.append(Rejection(topic, payload, reason, received_ms))
                 return
         if type(doc) is dict:
-            reason = self._decode_item(topic, doc, received_s, readings)
+            reason = self._decode_item(topic, doc, received_ms, readings)
             if reason is not None:
-                rejects.append(Rejection(topic, payload, reason, received_s))
+                rejects.append(Rejection(topic, payload, reason, received_ms))
             return
         if len(doc) > limits.max_batch_items:
             reason = f"batch of {len(doc)} items exceeds the limit of {limits.max_batch_items}"
-            rejects.append(Rejection(topic, payload[:1024], reason, received_s))
+            rejects.append(Rejection(topic, payload[:1024], reason, received_ms))
             return
         if not doc:
-            rejects.append(Rejection(topic, payload, "empty batch", received_s))
+            rejects.append(Rejection(topic, payload, "empty batch", received_ms))
             return
         decode_item = self._decode_item
         for index, item in enumerate(doc):
             if type(item) is not dict:
                 reason = f"batch item {index}: expected an object, got {_json_type(item)}"
             else:
-                reason = decode_item(topic, item, received_s, readings)
+                reason = decode_item(topic, item, received_ms, readings)
                 if reason is None:
                     continue
                 reason = f"batch item {index}: {reason}"
             raw = json.dumps(item, allow_nan=True).encode()
-            rejects.append(Rejection(topic, raw, reason, received_s))
+            rejects.append(Rejection(topic, raw, reason, received_ms))
 
-    def _decode_plain(self, topic, payload, text, received_s, readings, rejects) -> None:
+    def _decode_plain(self, topic, payload, text, received_ms, readings, rejects) -> None:
         target = self.topics.lookup(topic)
         if type(target) is str:
-            rejects.append(Rejection(topic, payload, target, received_s))
+            rejects.append(Rejection(topic, payload, target, received_ms))
             return
         if _NUMBER.fullmatch(text):
             raw = float(text)
@@ -312,13 +315,13 @@ class PayloadDecoder:
         else:
             shown = text if len(text) <= 40 else text[:40] + "..."
             reason = f"payload {shown!r} is not a number"
-            rejects.append(Rejection(topic, payload, reason, received_s))
+            rejects.append(Rejection(topic, payload, reason, received_ms))
             return
-        reason = _append_reading(target, received_s, raw, readings)
+        reason = _append_reading(target, received_ms, raw, readings)
         if reason is not None:
-            rejects.append(Rejection(topic, payload, reason, received_s))
+            rejects.append(Rejection(topic, payload, reason, received_ms))
 
-    def _decode_item(self, topic, item: dict, received_s: float, readings) -> str | None:
+    def _decode_item(self, topic, item: dict, received_ms: float, readings) -> str | None:
         """Decode one JSON object; returns a reason when it is rejected."""
         name = item.get("point")
         if name is not None:
@@ -349,31 +352,30 @@ class PayloadDecoder:
         if ts is None:
             ts = item.get("timestamp")
         if ts is None:
-            ts_s = received_s
+            ts_ms = received_ms
         else:
-            ts_s = self._timestamp(ts)
-            if type(ts_s) is str:
-                return ts_s
+            ts_ms = self._timestamp_ms(ts)
+            if type(ts_ms) is str:
+                return ts_ms
             limits = self.limits
-            if ts_s > received_s + limits.max_future_s:
-                return f"timestamp {_iso(ts_s)} is {ts_s - received_s:.0f} s in the future"
-            if ts_s < received_s - limits.max_age_s:
+            if ts_ms > received_ms + limits.max_future_s * 1000.0:
+                ahead_s = (ts_ms - received_ms) / 1000.0
+                return f"timestamp {_iso(ts_ms)} is {ahead_s:.0f} s in the future"
+            if ts_ms < received_ms - limits.max_age_s * 1000.0:
                 return (
-                    f"timestamp {_iso(ts_s)} is older than the limit of "
+                    f"timestamp {_iso(ts_ms)} is older than the limit of "
                     f"{limits.max_age_s / 86400:.0f} days"
                 )
-        return _append_reading(target, ts_s, raw, readings)
+        return _append_reading(target, ts_ms, raw, readings)
 
-    def _timestamp(self, ts) -> float | str:
+    def _timestamp_ms(self, ts) -> int | str:
         ts_type = type(ts)
         if ts_type is int or ts_type is float:
             try:
-                ts_s = ts / 1000.0 if abs(ts) >= _EPOCH_MS_THRESHOLD else float(ts)
-            except OverflowError:
-                ts_s = math.inf
-            if not math.isfinite(ts_s):
+                ts_ms = ts if abs(ts) >= _EPOCH_MS_THRESHOLD else ts * 1000.0
+                return round(ts_ms)
+            except (OverflowError, ValueError):
                 return f"timestamp {str(ts)[:30]} is not a finite epoch time"
-            return ts_s
         if ts_type is str:
             try:
                 parsed = datetime.fromisoformat(ts)
@@ -381,11 +383,11 @@ class PayloadDecoder:
                 return f"timestamp {ts[:40]!r} is not ISO 8601"
             if parsed.tzinfo is None:
                 parsed = parsed.replace(tzinfo=self.naive_tz)
-            return parsed.timestamp()
+            return round(parsed.timestamp() * 1000.0)
         return f"timestamp must be ISO 8601 text or epoch seconds, got {_json_type(ts)}"
 
 
-def _append_reading(target: PointTarget, ts_s: float, raw, readings) -> str | None:
+def _append_reading(target: PointTarget, ts_ms: int, raw, readings) -> str | None:
     try:
         value = raw * target.scale + target.offset
     except OverflowError:  # a JSON integer beyond float range
@@ -399,15 +401,15 @@ def _append_reading(target: PointTarget, ts_s: float, raw, readings) -> str | No
             f"{target.role} {value:.6g} (SI) is outside the plausible range "
             f"{target.low:.6g} to {target.high:.6g}"
         )
-    readings.append((target.key, ts_s, value))
+    readings.append((target.key, ts_ms, value))
     return None
 
 
-def _iso(ts_s: float) -> str:
+def _iso(ts_ms: int) -> str:
     try:
-        return datetime.fromtimestamp(ts_s, UTC).isoformat()
+        return datetime.fromtimestamp(ts_ms / 1000.0, UTC).isoformat()
     except (OverflowError, ValueError, OSError):
-        return f"{ts_s:.0f} (epoch s)"
+        return f"{ts_ms} (epoch ms)"
 
 
 def _json_type(value) -> str:
@@ -416,3 +418,34 @@ def _json_type(value) -> str:
     return {bool: "a boolean", str: "a string", list: "a list", dict: "an object"}.get(
         type(value), type(value).__name__
     )
+
+
+def decoder_for_points(
+    points: Iterable, limits: DecodeLimits | None = None, naive_tz: tzinfo = UTC
+) -> PayloadDecoder:
+    """A decoder for a site's points.
+
+    Parameters
+    ----------
+    points : iterable of :class:`rimewatch.store.PointInfo` (or anything with ``id``, ``unit_key``,
+        ``role``, ``measurement_unit``, ``mqtt_topic`` and ``elevation_m``). Readings carry ``id``.
+    """
+    entries, by_name = [], {}
+    for point in points:
+        name = f"{point.unit_key}/{point.role}"
+        try:
+            if unit_kind(point.measurement_unit) == "status":
+                target = PointTarget.for_role(point.id, name, point.role, on_off=True)
+            else:
+                pressure = atmospheric_pressure(point.elevation_m or 0.0)
+                scale, offset = affine_from(
+                    lambda v, u=point.measurement_unit, p=pressure: to_si(v, u, p),
+                    point.measurement_unit,
+                )
+                target = PointTarget.for_role(point.id, name, point.role, scale, offset)
+        except ValueError as exc:
+            raise ValueError(f"point {name}: {exc}") from exc
+        by_name[name] = target
+        if point.mqtt_topic:
+            entries.append((point.mqtt_topic, target))
+    return PayloadDecoder(TopicMap(entries), by_name, limits, naive_tz)

@@ -14,11 +14,13 @@ from rimewatch.ingest.payload import (
     PointTarget,
     TopicMap,
     affine_from,
+    decoder_for_points,
     topic_matches,
 )
 
 # Received time for every message: 2025-06-01T12:00:00Z.
-NOW = datetime(2025, 6, 1, 12, tzinfo=UTC).timestamp()
+NOW = 1748779200000  # [ms]
+assert datetime(2025, 6, 1, 12, tzinfo=UTC).timestamp() * 1000 == NOW
 
 # NIST SP 811 (2008), appendix B: 1 psi = 6894.757 Pa; T/K = (t/degF + 459.67) / 1.8.
 PSI_PA = 6894.757
@@ -71,13 +73,14 @@ def test_fahrenheit_to_kelvin():
 
 
 def test_json_object_with_iso_and_epoch_timestamps():
-    expected = datetime(2025, 6, 1, 11, 59, 30, tzinfo=UTC).timestamp()
+    expected = NOW - 30_000
     # RFC 3339 / ISO 8601 forms of the same instant: Z, numeric offset, epoch s, epoch ms
     stamps = [
         '"2025-06-01T11:59:30Z"',
         '"2025-06-01T13:59:30+02:00"',
-        str(int(expected)),
-        str(int(expected * 1000)),
+        str(expected // 1000),
+        str(expected),
+        str(expected / 1000),
     ]
     for stamp in stamps:
         for key in ("ts", "timestamp"):
@@ -90,7 +93,7 @@ def test_naive_iso_timestamp_uses_configured_zone():
     decoder = make_decoder()
     decoder.naive_tz = timezone(timedelta(hours=-5))
     readings, _ = decode("acme/rtu-1/oat", '{"value": 1, "ts": "2025-06-01T06:00:00"}', decoder)
-    assert readings[0][1] == datetime(2025, 6, 1, 11, tzinfo=UTC).timestamp()
+    assert readings[0][1] == NOW - 3_600_000
 
 
 def test_missing_timestamp_takes_received_time():
@@ -100,16 +103,16 @@ def test_missing_timestamp_takes_received_time():
 
 def test_batch_list_and_readings_object():
     items = [
-        {"point": "rtu-1/outdoor_air_temp", "value": 20, "ts": NOW - 60},
-        {"topic": "acme/rtu-1/suction_pressure", "value": 0, "ts": NOW - 60},
-        {"point": "rtu-1/compressor_status", "value": "on", "ts": NOW - 60},
-        {"point": "rtu-1/compressor_status", "value": False, "ts": NOW - 30},
+        {"point": "rtu-1/outdoor_air_temp", "value": 20, "ts": NOW - 60_000},
+        {"topic": "acme/rtu-1/suction_pressure", "value": 0, "ts": NOW - 60_000},
+        {"point": "rtu-1/compressor_status", "value": "on", "ts": NOW - 60_000},
+        {"point": "rtu-1/compressor_status", "value": False, "ts": NOW - 30_000},
     ]
     expected = [
-        (3, NOW - 60, pytest.approx(293.15)),
-        (1, NOW - 60, pytest.approx(STANDARD_ATMOSPHERE_PA)),
-        (4, NOW - 60, 1.0),
-        (4, NOW - 30, 0.0),
+        (3, NOW - 60_000, pytest.approx(293.15)),
+        (1, NOW - 60_000, pytest.approx(STANDARD_ATMOSPHERE_PA)),
+        (4, NOW - 60_000, 1.0),
+        (4, NOW - 30_000, 0.0),
     ]
     for doc in (items, {"readings": items}):
         readings, rejects = decode("acme/batch", json.dumps(doc))
@@ -118,7 +121,7 @@ def test_batch_list_and_readings_object():
 
 
 def test_batch_on_point_topic_items_inherit_the_topic():
-    doc = [{"value": 10, "ts": NOW - 20}, {"value": 11, "ts": NOW - 10}]
+    doc = [{"value": 10, "ts": NOW - 20_000}, {"value": 11, "ts": NOW - 10_000}]
     readings, _ = decode("acme/rtu-7/oat", json.dumps(doc))
     assert [r[2] for r in readings] == [pytest.approx(283.15), pytest.approx(284.15)]
 
@@ -183,7 +186,7 @@ def test_rejections_carry_a_reason(topic, payload, reason):
     assert len(rejects) == 1
     assert reason in rejects[0].reason
     assert rejects[0].topic == topic
-    assert rejects[0].received_s == NOW
+    assert rejects[0].received_ms == NOW
 
 
 def test_oversize_payload_rejected_and_truncated():
@@ -259,14 +262,51 @@ def test_affine_from_recovers_scale_and_offset():
         assert unit == "degF"
         return (value + 459.67) / 1.8
 
-    scale, offset = affine_from(fahrenheit_to_kelvin, "degF")
+    scale, offset = affine_from(lambda v: fahrenheit_to_kelvin(v, "degF"), "degF")
     assert scale == pytest.approx(1 / 1.8) and offset == pytest.approx(255.372222, abs=1e-6)
     with pytest.raises(ValueError, match="affinely"):
-        affine_from(lambda v, u: v * v, "squared")
+        affine_from(lambda v: v * v, "squared")
 
 
 def test_ms_threshold_boundary():
     # epoch numbers >= 1e11 are milliseconds: 1e11 ms = 1973-03-03, 1e11 s would be year 5138
     decoder = make_decoder(max_age_s=math.inf, max_future_s=math.inf)
     readings, _ = decode("acme/rtu-1/oat", '{"value": 1, "ts": 100000000000}', decoder)
-    assert readings[0][1] == 1e8
+    assert readings[0][1] == 100_000_000_000
+
+
+def test_decoder_for_points_uses_units_and_site_elevation():
+    from rimewatch.store import PointInfo
+
+    def info(point_id, role, unit, topic, elevation_m=1000.0):
+        return PointInfo(point_id, "acme", 1, "rtu-1", 1, role, unit, topic, None, elevation_m)
+
+    decoder = decoder_for_points(
+        [
+            info(11, "suction_pressure", "psig", "a/p"),
+            info(12, "suction_temp", "degF", "a/t"),
+            info(13, "compressor_status", "on/off", "a/s"),
+            info(14, "outdoor_air_temp", "degC", None),
+        ]
+    )
+    readings, rejects = [], []
+    decoder.decode("a/p", b"0", NOW, readings, rejects)
+    decoder.decode("a/t", b"32", NOW, readings, rejects)
+    decoder.decode("a/s", b"on", NOW, readings, rejects)
+    decoder.decode(
+        "a/batch", b'[{"point": "rtu-1/outdoor_air_temp", "value": 0}]', NOW, readings, rejects
+    )
+    assert rejects == []
+    # 0 psig at 1000 m is the ISO 2533 standard-atmosphere pressure there, 89874.6 Pa
+    assert readings[0] == (11, NOW, pytest.approx(89874.6, abs=1.0))
+    assert readings[1] == (12, NOW, pytest.approx(273.15))  # 32 degF, NIST SP 811
+    assert readings[2] == (13, NOW, 1.0)
+    assert readings[3] == (14, NOW, pytest.approx(273.15))
+
+
+def test_decoder_for_points_names_a_bad_unit():
+    from rimewatch.store import PointInfo
+
+    bad = PointInfo(1, "acme", 1, "rtu-1", 1, "suction_pressure", "furlongs", "a/p", None, 0.0)
+    with pytest.raises(ValueError, match="point rtu-1/suction_pressure"):
+        decoder_for_points([bad])

@@ -1,0 +1,356 @@
+"""The MQTT ingester: a paho-mqtt 2 subscriber that acknowledges a reading only once it is stored.
+
+Threads: paho's network thread runs ``on_message``, which only puts the message on a queue. One
+writer thread takes messages off the queue, decodes them (:mod:`rimewatch.ingest.payload`), writes
+the batch's readings and rejections in one transaction through a :class:`Sink`, commits, and only
+then acknowledges each message (``manual_ack``). A crash at any point leaves unacknowledged messages
+with the broker, which redelivers them; the store ignores readings it already has, so redelivery is
+harmless.
+
+The session is persistent (MQTT 5 ``clean_start=False`` with a session expiry interval and a fixed
+client id), so messages published while the ingester is down wait at the broker, up to its
+``max_queued_messages`` limit. The broker sends at most ``receive_maximum`` unacknowledged messages,
+so a batch is flushed when it holds ``batch_max_messages`` (kept below that window) or when its
+oldest message has waited ``flush_interval_s``.
+
+Environment variables (read by :func:`MqttSettings.from_env`):
+
+``RIMEWATCH_MQTT_USERNAME`` / ``RIMEWATCH_MQTT_PASSWORD``
+    credentials for the broker;
+``RIMEWATCH_MQTT_TLS``
+    ``1``/``true`` to use TLS with the system's certificate authorities;
+``RIMEWATCH_MQTT_CA_FILE``
+    a CA certificate (PEM) to verify the broker with; implies TLS.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import queue
+import threading
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Protocol
+
+import paho.mqtt.client as mqtt
+from paho.mqtt.enums import CallbackAPIVersion
+from paho.mqtt.packettypes import PacketTypes
+from paho.mqtt.properties import Properties
+from paho.mqtt.subscribeoptions import SubscribeOptions
+
+from rimewatch.ingest.payload import PayloadDecoder, Rejection, topic_matches
+from rimewatch.store import QuarantineEntry, write_quarantine, write_readings
+
+log = logging.getLogger(__name__)
+
+ENV_USERNAME = "RIMEWATCH_MQTT_USERNAME"
+ENV_PASSWORD = "RIMEWATCH_MQTT_PASSWORD"
+ENV_TLS = "RIMEWATCH_MQTT_TLS"
+ENV_CA_FILE = "RIMEWATCH_MQTT_CA_FILE"
+_TRUE = {"1", "true", "yes", "on"}
+
+
+class Sink(Protocol):
+    """Where the writer thread puts a batch: both lists in one transaction, committed on return."""
+
+    def store(
+        self, readings: Sequence[tuple[int, int, float]], rejects: Sequence[Rejection]
+    ) -> int:
+        """Store readings (idempotently) and rejections; return the readings newly stored."""
+
+
+class StoreSink:
+    """A :class:`Sink` over the rimewatch database (``rimewatch.store``)."""
+
+    def __init__(self, engine, site_id: int | None = None):
+        self.engine = engine
+        self.site_id = site_id
+
+    def store(self, readings, rejects) -> int:
+        with self.engine.begin() as conn:
+            stored = write_readings(conn, readings)
+            if rejects:
+                write_quarantine(
+                    conn,
+                    [
+                        QuarantineEntry(
+                            "mqtt", r.topic, None, r.payload, r.reason, r.received_ms, self.site_id
+                        )
+                        for r in rejects
+                    ],
+                )
+        return stored
+
+
+@dataclass
+class MqttSettings:
+    """How to reach the broker and how to hold the session; times in seconds."""
+
+    host: str = "localhost"
+    port: int = 1883
+    client_id: str = "rimewatch-ingest"
+    username: str | None = None
+    password: str | None = field(default=None, repr=False)
+    tls: bool = False
+    ca_file: str | None = None
+    keepalive_s: int = 30
+    session_expiry_s: int = 7 * 24 * 3600
+    receive_maximum: int = 1000
+    batch_max_messages: int = 500
+    flush_interval_s: float = 0.2
+    reconnect_min_delay_s: int = 1
+    reconnect_max_delay_s: int = 60
+
+    @classmethod
+    def from_env(cls, environ=os.environ, **overrides) -> MqttSettings:
+        """Settings with credentials and TLS from the ``RIMEWATCH_MQTT_*`` variables."""
+        ca_file = environ.get(ENV_CA_FILE) or None
+        tls = ca_file is not None or environ.get(ENV_TLS, "").strip().lower() in _TRUE
+        settings = cls(
+            username=environ.get(ENV_USERNAME) or None,
+            password=environ.get(ENV_PASSWORD) or None,
+            tls=tls,
+            ca_file=ca_file,
+        )
+        for name, value in overrides.items():
+            setattr(settings, name, value)
+        return settings
+
+    def __post_init__(self):
+        if not 1 <= self.batch_max_messages <= self.receive_maximum:
+            raise ValueError(
+                f"batch_max_messages ({self.batch_max_messages}) must be between 1 and "
+                f"receive_maximum ({self.receive_maximum}), or the writer waits for messages "
+                "the broker will not send"
+            )
+
+
+@dataclass
+class IngestStats:
+    """Counters since start (updated by the writer thread only)."""
+
+    messages: int = 0
+    readings_stored: int = 0
+    readings_duplicate: int = 0
+    rejected: int = 0
+    commits: int = 0
+    store_failures: int = 0
+    connects: int = 0
+
+
+_STOP = object()
+
+
+def subscription_filters(point_filters: Sequence[str], extra_filters: Sequence[str]) -> list[str]:
+    """Distinct filters to subscribe to, leaving out point filters an extra filter already covers
+    (overlapping subscriptions can make the broker deliver a message twice)."""
+    extra = list(dict.fromkeys(extra_filters))
+    kept = [
+        f
+        for f in dict.fromkeys(point_filters)
+        if not any(_covers(wide, f) for wide in extra) and f not in extra
+    ]
+    return kept + extra
+
+
+def _covers(wide: str, narrow: str) -> bool:
+    """Every topic matching filter ``narrow`` also matches filter ``wide``."""
+    if "#" in narrow and not wide.endswith("#"):
+        return False
+    return topic_matches(wide, narrow)
+
+
+class Ingester:
+    """Subscribe to the decoder's topics (and ``extra_filters``) and store what arrives.
+
+    Call :meth:`start`, then :meth:`stop` (from any thread, e.g. after SIGTERM): it stores and
+    acknowledges every message already received, then disconnects.
+    """
+
+    def __init__(
+        self,
+        settings: MqttSettings,
+        decoder: PayloadDecoder,
+        sink: Sink,
+        extra_filters: Sequence[str] = (),
+    ):
+        self.settings = settings
+        self.decoder = decoder
+        self.sink = sink
+        self.filters = subscription_filters(decoder.topics.filters, extra_filters)
+        self.stats = IngestStats()
+        self.connected = threading.Event()
+        self.subscribed = threading.Event()
+        self._queue: queue.SimpleQueue = queue.SimpleQueue()
+        self._stopping = threading.Event()
+        self._session = 0  # counts connections: an ack is only valid on the connection it came on
+        self._writer = threading.Thread(target=self._write_loop, name="rimewatch-writer")
+        self.client = self._make_client()
+
+    def _make_client(self) -> mqtt.Client:
+        s = self.settings
+        client = mqtt.Client(
+            CallbackAPIVersion.VERSION2,
+            client_id=s.client_id,
+            protocol=mqtt.MQTTv5,
+            manual_ack=True,
+        )
+        if s.username is not None:
+            client.username_pw_set(s.username, s.password)
+        if s.tls:
+            client.tls_set(ca_certs=s.ca_file)  # verifies the certificate and the host name
+        client.reconnect_delay_set(s.reconnect_min_delay_s, s.reconnect_max_delay_s)
+        client.on_connect = self._on_connect
+        client.on_disconnect = self._on_disconnect
+        client.on_message = self._on_message
+        client.on_subscribe = self._on_subscribe
+        return client
+
+    def start(self) -> None:
+        """Connect in the background (retrying with backoff) and start the writer thread."""
+        s = self.settings
+        properties = Properties(PacketTypes.CONNECT)
+        properties.SessionExpiryInterval = s.session_expiry_s
+        properties.ReceiveMaximum = s.receive_maximum
+        self._writer.start()
+        self.client.connect_async(
+            s.host, s.port, keepalive=s.keepalive_s, clean_start=False, properties=properties
+        )
+        self.client.loop_start()
+
+    def stop(self, timeout_s: float = 30.0) -> bool:
+        """Store and acknowledge what has been received, then disconnect.
+
+        Messages arriving after the stop request stay unacknowledged; the broker keeps them in the
+        session for the next run. Returns False when the writer did not finish in time (its
+        messages are then redelivered later, not lost).
+        """
+        self._stopping.set()
+        self._queue.put(_STOP)
+        self._writer.join(timeout_s)
+        finished = not self._writer.is_alive()
+        self.client.disconnect()
+        self.client.loop_stop()
+        return finished
+
+    # paho callbacks: network thread, never block here
+
+    def _on_connect(self, client, userdata, flags, reason_code, properties) -> None:
+        if reason_code.is_failure:
+            log.error(
+                "broker %s:%d refused the connection: %s",
+                self.settings.host,
+                self.settings.port,
+                reason_code,
+            )
+            return
+        self._session += 1
+        self.stats.connects += 1
+        log.info(
+            "connected to %s:%d as %r (session present: %s); subscribing to %d filter(s)",
+            self.settings.host,
+            self.settings.port,
+            self.settings.client_id,
+            flags.session_present,
+            len(self.filters),
+        )
+        if self.filters:
+            client.subscribe([(f, SubscribeOptions(qos=1)) for f in self.filters])
+        self.connected.set()
+
+    def _on_subscribe(self, client, userdata, mid, reason_codes, properties) -> None:
+        refused = [
+            f for f, code in zip(self.filters, reason_codes, strict=False) if code.is_failure
+        ]
+        if refused:
+            log.error("the broker refused the subscription to %s", ", ".join(refused))
+        log.info("subscribed to %d filter(s)", len(self.filters) - len(refused))
+        self.subscribed.set()
+
+    def _on_disconnect(self, client, userdata, flags, reason_code, properties) -> None:
+        self.connected.clear()
+        if not self._stopping.is_set():
+            log.warning("disconnected from the broker (%s); reconnecting", reason_code)
+
+    def _on_message(self, client, userdata, message) -> None:
+        self._queue.put(
+            (message.mid, message.qos, message.topic, message.payload, self._session, time.time())
+        )
+
+    # writer thread
+
+    def _write_loop(self) -> None:
+        s = self.settings
+        get = self._queue.get
+        decode = self.decoder.decode
+        readings: list[tuple[int, int, float]] = []
+        rejects: list[Rejection] = []
+        held: list[tuple[int, int, int]] = []  # (mid, qos, session) to acknowledge after commit
+        deadline = 0.0
+        stopping = False
+        while not stopping:
+            try:
+                item = get(timeout=max(deadline - time.monotonic(), 0.0)) if held else get()
+            except queue.Empty:
+                item = None
+            if item is _STOP:
+                stopping = True
+            elif item is not None:
+                mid, qos, topic, payload, session, received = item
+                if not held:
+                    deadline = time.monotonic() + s.flush_interval_s
+                received_ms = int(received * 1000.0)
+                try:
+                    decode(topic, payload, received_ms, readings, rejects)
+                except Exception as exc:  # a decoder bug must not lose the message
+                    log.exception("decoding a message on %r failed", topic)
+                    rejects.append(
+                        Rejection(topic, payload, f"internal decoding error: {exc!r}", received_ms)
+                    )
+                held.append((mid, qos, session))
+                if len(held) < s.batch_max_messages and time.monotonic() < deadline:
+                    continue
+            if held and not self._flush(readings, rejects, held, give_up=self._stopping):
+                return  # stopping while the store is failing: leave the messages unacknowledged
+            readings, rejects, held = [], [], []
+
+    def _flush(self, readings, rejects, held, give_up: threading.Event) -> bool:
+        delay_s = 0.5
+        while True:
+            try:
+                stored = self.sink.store(readings, rejects)
+                break
+            except Exception:
+                self.stats.store_failures += 1
+                log.exception(
+                    "storing %d readings failed; retrying in %.1f s (nothing acknowledged)",
+                    len(readings),
+                    delay_s,
+                )
+                if give_up.wait(delay_s):
+                    return False
+                delay_s = min(delay_s * 2, 30.0)
+        stats = self.stats
+        stats.commits += 1
+        stats.messages += len(held)
+        stats.readings_stored += stored
+        stats.readings_duplicate += len(readings) - stored
+        stats.rejected += len(rejects)
+        ack = self.client.ack
+        current = self._session
+        for mid, qos, session in held:
+            # After a reconnect the broker redelivers the older copy, which is acked then.
+            if qos and session == current:
+                ack(mid, qos)
+        return True
+
+    def stats_line(self) -> str:
+        s = self.stats
+        return (
+            f"messages={s.messages} stored={s.readings_stored} duplicates={s.readings_duplicate} "
+            f"quarantined={s.rejected} commits={s.commits} store_failures={s.store_failures} "
+            f"connects={s.connects} connected={self.connected.is_set()} "
+            f"queued={self._queue.qsize()}"
+        )
