@@ -16,6 +16,7 @@ from rimewatch import __version__
 COMMANDS: dict[str, str] = {
     "cycle": "rimewatch.commands.cycle:cycle",
     "demo": "rimewatch.commands.demo:demo",
+    "listen": "rimewatch.commands.listen:listen",
     "map": "rimewatch.commands.map:map_group",
     "init": "rimewatch.commands.init:init",
     "apply": "rimewatch.commands.apply:apply",
