@@ -250,9 +250,12 @@ def temperature_difference_unit(temperature_unit: str) -> str:
 
 @cache
 def _registry():
-    import pint  # imported on first use: building the registry takes ~0.15 s
+    import pint  # imported on first use: import and registry take ~0.3-0.5 s
 
-    return pint.UnitRegistry()
+    try:  # pint's on-disk cache of parsed definitions makes later starts ~10x faster
+        return pint.UnitRegistry(cache_folder=":auto:")
+    except OSError:
+        return pint.UnitRegistry()
 
 
 @cache
