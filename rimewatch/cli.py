@@ -23,6 +23,7 @@ COMMANDS: dict[str, str] = {
     "import": "rimewatch.commands.import_csv:import_command",
     "points": "rimewatch.commands.points:points",
     "quarantine": "rimewatch.commands.quarantine:quarantine",
+    "commission": "rimewatch.commands.commission:commission",
 }
 
 
