@@ -3,6 +3,8 @@
 Pure functions over numpy arrays and pandas objects, SI units throughout (Pa absolute, K, J/kg).
 """
 
+from rimewatch.physics.cycle import COLUMNS as CYCLE_COLUMNS
+from rimewatch.physics.cycle import cycle_states
 from rimewatch.physics.refrigerant import (
     SUPPORTED,
     Refrigerant,
@@ -22,10 +24,12 @@ from rimewatch.physics.refrigerant import (
 )
 
 __all__ = [
+    "CYCLE_COLUMNS",
     "SUPPORTED",
     "Refrigerant",
     "UnsupportedRefrigerantError",
     "critical_point",
+    "cycle_states",
     "density",
     "enthalpy",
     "entropy",

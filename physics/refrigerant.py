@@ -238,15 +238,21 @@ def latent_heat(refrigerant, temperature):
 
 
 def _single_phase(refrigerant, pressure, temperature, output: str):
-    """A single-phase property at (P, T): vapour where T is at or above the dew point, else liquid."""
+    """A single-phase property at (P, T): vapour at or above the dew point, liquid at or below the
+    bubble point, supercritical fluid above the critical pressure; NaN in between."""
     fluid = get_refrigerant(refrigerant)
     p, t = np.broadcast_arrays(np.asarray(pressure, float), np.asarray(temperature, float))
     t_dew = np.asarray(saturation_temperature(fluid, p, "dew"))
-    vapour = ~(t < t_dew)  # NaN dew point (supercritical) counts as vapour-like
     out = np.full(p.shape, np.nan)
+    supercritical = p >= fluid.critical_pressure
+    if supercritical.any():
+        out[supercritical] = _evaluate(
+            fluid, CP.PT_INPUTS, p[supercritical], t[supercritical], (output,)
+        )[0]
+    vapour = ~supercritical & (t >= t_dew)
     if vapour.any():
         out[vapour] = _evaluate(fluid, CP.PT_INPUTS, p[vapour], t[vapour], (output,), "gas")[0]
-    liquid = ~vapour
+    liquid = ~supercritical & (t < t_dew)
     if liquid.any():
         t_bubble = np.asarray(saturation_temperature(fluid, p, "bubble"))
         below = liquid & (t <= t_bubble)
