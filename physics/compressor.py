@@ -220,18 +220,24 @@ class Envelope:
 def _in_polygon(vertices: np.ndarray, x: np.ndarray, y: np.ndarray, tolerance: float) -> np.ndarray:
     """Even-odd ray casting, with points within ``tolerance`` of an edge counted inside."""
     inside = np.zeros(x.shape, dtype=bool)
-    on_edge = np.zeros(x.shape, dtype=bool)
     x0, y0 = vertices[:, 0], vertices[:, 1]
     x1, y1 = np.roll(x0, -1), np.roll(y0, -1)
-    for ax, ay, bx, by in zip(x0, y0, x1, y1, strict=True):
+    edges = list(zip(x0, y0, x1, y1, strict=True))
+    for ax, ay, bx, by in edges:
+        if ay == by:
+            continue  # a horizontal edge never crosses the ray
         crosses = (ay > y) != (by > y)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            x_cross = ax + (y - ay) * (bx - ax) / (by - ay)
-        inside ^= crosses & (x < x_cross)
-        length2 = (bx - ax) ** 2 + (by - ay) ** 2
-        t = np.clip(((x - ax) * (bx - ax) + (y - ay) * (by - ay)) / max(length2, 1e-300), 0, 1)
-        on_edge |= np.hypot(x - (ax + t * (bx - ax)), y - (ay + t * (by - ay))) <= tolerance
-    return inside | on_edge
+        inside ^= crosses & (x < ax + (y - ay) * ((bx - ax) / (by - ay)))
+    candidates = np.flatnonzero(~inside & np.isfinite(x) & np.isfinite(y))
+    if candidates.size:
+        px, py = x.ravel()[candidates], y.ravel()[candidates]
+        on_edge = np.zeros(candidates.size, dtype=bool)
+        for ax, ay, bx, by in edges:
+            length2 = max((bx - ax) ** 2 + (by - ay) ** 2, 1e-300)
+            t = np.clip(((px - ax) * (bx - ax) + (py - ay) * (by - ay)) / length2, 0, 1)
+            on_edge |= np.hypot(px - (ax + t * (bx - ax)), py - (ay + t * (by - ay))) <= tolerance
+        inside.ravel()[candidates[on_edge]] = True
+    return inside
 
 
 def convex_hull(suction_temp, discharge_temp) -> tuple[tuple[float, float], ...]:
