@@ -310,7 +310,7 @@ def size_unit(spec: UnitSpec, atmospheric_pressure: float = 101325.0) -> UnitPar
         evaporator_airflow=spec.evaporator_airflow_m3_s,
         condenser_airflow=spec.condenser_airflow_m3_s,
         volume_evaporator=0.15e-3 * spec.nominal_capacity_kW,
-        volume_condenser=0.25e-3 * spec.nominal_capacity_kW,
+        volume_condenser=0.35e-3 * spec.nominal_capacity_kW,
         volume_liquid_line=spec.liquid_line_volume_L_per_kW * 1e-3 * spec.nominal_capacity_kW,
         volume_vapour_lines=0.08e-3 * spec.nominal_capacity_kW,
         valve_flow_area=np.nan,
@@ -321,16 +321,31 @@ def size_unit(spec: UnitSpec, atmospheric_pressure: float = 101325.0) -> UnitPar
         nominal_capacity=capacity,
     )
     design = model.rating_conditions(draft)
-    x = np.array([[t_evap, t_cond, spec.design_superheat_K, spec.design_subcooling_K]], dtype=float)
+    map_flow = model.ahri540(draft.mass_flow_coefficients, t_evap, t_cond) * correction[0]
+    draft = replace(draft, design_mass_flow=float(map_flow))
+    cpv_e = float(lerp(tables.cp_vapour, e)[0])
+    cpl_c = float(lerp(tables.cp_liquid, c)[0])
+    t_bubble_c = float(lerp(tables.t_bubble, c)[0])
+
+    def states(ua_e, ua_c):
+        f_sh = model.zone_fraction(
+            spec.design_superheat_K, spec.rating_return_C + 273.15 - t_evap, map_flow * cpv_e, ua_e
+        )
+        f_sc = model.zone_fraction(
+            spec.design_subcooling_K,
+            t_bubble_c - (spec.rating_outdoor_C + 273.15),
+            map_flow * cpl_c,
+            ua_c * model.SUBCOOLING_UA_SHARE,
+        )
+        return np.array([[t_evap, t_cond, 100.0 * f_sh, 100.0 * f_sc]], dtype=float)
 
     def evaporator_mismatch(ua):
-        return model.evaluate(replace(draft, ua_evaporator=ua, ua_condenser=1e4), design, x)[
-            "residual"
-        ][0, 0]
+        trial = replace(draft, ua_evaporator=ua, ua_condenser=1e4)
+        return model.evaluate(trial, design, states(ua, 1e4))["residual"][0, 0]
 
     def condenser_mismatch(ua):
         trial = replace(draft, ua_evaporator=ua_e, ua_condenser=ua)
-        return model.evaluate(trial, design, x)["residual"][0, 1]
+        return model.evaluate(trial, design, states(ua_e, ua))["residual"][0, 1]
 
     try:
         ua_e = brentq(evaporator_mismatch, 0.5 * rho_air_e * 1006.0 * 0.01, 2e6, xtol=1e-6)
@@ -340,15 +355,18 @@ def size_unit(spec: UnitSpec, atmospheric_pressure: float = 101325.0) -> UnitPar
             f"cannot size the coils for the design point of {spec.kind} ({spec.refrigerant}): "
             "the air flows cannot carry the design capacity at these temperatures"
         ) from error
+    x = states(ua_e, ua_c)
     sized = replace(draft, ua_evaporator=ua_e, ua_condenser=ua_c, charge=1.0, valve_flow_area=1.0)
     state = model.evaluate(sized, design, x, full=True)
     oversize = {"txv": TXV_OVERSIZE, "eev": EEV_OVERSIZE, "fixed_orifice": 1.0}[
         spec.expansion_device
     ]
+    mass_flow = float(state["mass_flow"][0])
     valve_area = float(mass_flow / state["valve_flow_per_area"][0]) * oversize
     charge = float(state["charge"][0])
     sized = replace(sized, valve_flow_area=valve_area, charge=charge)
     final = model.evaluate(sized, design, x, full=True)
+    sized = replace(sized, nominal_capacity=float(final["capacity"][0]))
     return replace(
         sized, design_state={k: float(v[0]) for k, v in final.items() if np.ndim(v) == 1}
     )

@@ -71,6 +71,7 @@ CP_AIR = 1006.0  # J/(kg K), dry air near room temperature (ASHRAE Fundamentals 
 DENSITY_CORRECTION = 0.75  # F_v of Dabiri and Rice [2]
 ORIFICE_CHOKE = 0.6  # beta, see the module docstring
 AIRFLOW_EXPONENT = 0.6  # UA ~ airflow^0.6 on the air side (common practice, finned-tube coils)
+SUBCOOLING_UA_SHARE = 0.5  # subcooled liquid's lower inside coefficient halves its zone's UA
 AIR_SIDE_SHARE = 0.7  # share of a coil's thermal resistance on the air side (common practice)
 HEAD_PRESSURE_BAND_K = 5.0  # fan speed rises from its minimum to full over this band
 HEAD_PRESSURE_MIN_FAN = 0.15
@@ -153,24 +154,51 @@ def _homogeneous_density(x, rho_liquid, rho_vapour):
     return 1.0 / (x / rho_vapour + (1.0 - x) / rho_liquid)
 
 
-def _zone_fraction(change, available, capacity_rate, ua):
-    """Share of a coil's area a single-phase zone needs to change its temperature by ``change``.
+def zone_temperature_change(fraction, available, capacity_rate, ua):
+    """Temperature change [K] of refrigerant in a single-phase zone holding ``fraction`` of a coil.
 
-    From epsilon-NTU with the refrigerant as the only finite stream:
-    change = available * (1 - exp(-f UA / C)), so f = -ln(1 - change/available) C / UA.
+    epsilon-NTU with the refrigerant as the only finite stream [3]:
+    change = available * (1 - exp(-f UA / C)), ``available`` the air-to-saturation difference.
     """
-    ratio = np.clip(change / np.maximum(available, 1e-6), 0.0, 0.99999)
+    return available * -np.expm1(-fraction * ua / capacity_rate)
+
+
+def zone_fraction(change, available, capacity_rate, ua):
+    """Inverse of :func:`zone_temperature_change`: the coil share that gives ``change`` [K]."""
+    ratio = np.clip(change / np.maximum(available, 1e-6), 0.0, 0.999999)
     return -np.log1p(-ratio) * capacity_rate / ua
+
+
+def _evaporator_ua(unit, cond):
+    return unit.ua_evaporator * cond.evaporator_airflow_factor**AIRFLOW_EXPONENT
+
+
+def _condenser_air(unit, cond, t_cond):
+    """Condenser air volume-flow factor (faults and head-pressure fan control) and UA [W/K]."""
+    flow = cond.condenser_airflow_factor
+    if unit.min_condensing is not None:
+        fan = np.clip(
+            HEAD_PRESSURE_MIN_FAN
+            + (1 - HEAD_PRESSURE_MIN_FAN) * (t_cond - unit.min_condensing) / HEAD_PRESSURE_BAND_K,
+            HEAD_PRESSURE_MIN_FAN,
+            1.0,
+        )
+        flow = flow * fan
+    ua = unit.ua_condenser * flow**AIRFLOW_EXPONENT * (1.0 - cond.noncondensable)
+    return flow, ua
 
 
 def evaluate(unit, cond: Conditions, x: np.ndarray, full: bool = False) -> dict:
     """Residuals of the four balances at states ``x`` (n, 4); with ``full`` every derived quantity.
 
+    ``x`` columns: t_evap [K], t_cond [K], y (percent of the evaporator superheating when >= 0,
+    else a wet outlet of quality 1 + y c_p,v / h_fg), z (percent of the condenser subcooling when
+    >= 0, else a two-phase outlet of enthalpy h_liquid - c_p,l z).
     Returns a dict with ``residual`` (n, 4) and, when ``full``, arrays for the unit's states.
     """
     tab, air, spec = unit.refrigerant, unit.air, unit.spec
     t_evap, t_cond, y, z = x[:, 0], x[:, 1], x[:, 2], x[:, 3]
-    superheat, subcooling = np.maximum(y, 0.0), np.maximum(z, 0.0)
+    f_sh, f_sc = np.maximum(y, 0.0) / 100.0, np.maximum(z, 0.0) / 100.0
 
     e = tab.grid.locate(t_evap)
     c = tab.grid.locate(t_cond)
@@ -183,31 +211,38 @@ def evaluate(unit, cond: Conditions, x: np.ndarray, full: bool = False) -> dict:
     cpl_c, tb_c = lerp(tab.cp_liquid, c), lerp(tab.t_bubble, c)
     hfg_e, hfg_c = hv_e - hl_e, hv_c - hl_c
 
-    # compressor
+    # compressor; its flow and the superheat it sees depend on each other: three fixed-point passes
     p_discharge = p_cond + cond.noncondensable * unit.design_condensing_pressure
     t_discharge_dew = np.where(cond.noncondensable > 0, tab.dew_temperature(p_discharge), t_cond)
-    sh_cols = tab.superheat_grid.locate(superheat)
-    h_sh = bilerp(tab.h_superheated, e, sh_cols)
-    rho_suction = bilerp(tab.rho_superheated, e, sh_cols)
     rated_cols = tab.superheat_grid.locate(np.full(len(t_evap), RATED_SUPERHEAT_K))
     rho_rated = bilerp(tab.rho_superheated, e, rated_cols)
-    h1 = h_sh + cpv_e * np.minimum(y, 0.0)
     mass_map = ahri540(unit.mass_flow_coefficients, t_evap, t_discharge_dew)
     power_map = ahri540(unit.power_coefficients, t_evap, t_discharge_dew)
-    density_factor = 1.0 + DENSITY_CORRECTION * (rho_suction / rho_rated - 1.0)
-    mass_flow = mass_map * density_factor * (1.0 - cond.leakage)
+    ua_e = _evaporator_ua(unit, cond)
+    available_e = cond.return_temp - t_evap
+    mass_flow = mass_map * (1.0 - cond.leakage)
+    for _ in range(3):
+        superheat = zone_temperature_change(f_sh, available_e, mass_flow * cpv_e, ua_e)
+        sh_cols = tab.superheat_grid.locate(superheat)
+        rho_suction = bilerp(tab.rho_superheated, e, sh_cols)
+        density_factor = 1.0 + DENSITY_CORRECTION * (rho_suction / rho_rated - 1.0)
+        mass_flow = mass_map * density_factor * (1.0 - cond.leakage)
+    h1 = bilerp(tab.h_superheated, e, sh_cols) + cpv_e * np.minimum(y, 0.0)
     # a leaking valve re-compresses the gas it lets back: power falls less than flow (half of it)
     power = power_map * density_factor * (1.0 - 0.5 * cond.leakage)
     h2 = h1 + (1.0 - SHELL_LOSS_FRACTION) * power / mass_flow
-    h3 = hl_c - cpl_c * z
+
+    cond_flow, ua_c = _condenser_air(unit, cond, t_cond)
+    subcooling = zone_temperature_change(
+        f_sc, tb_c - cond.outdoor_temp, mass_flow * cpl_c, ua_c * SUBCOOLING_UA_SHARE
+    )
+    h3 = hl_c - cpl_c * np.where(z >= 0.0, subcooling, z)
     x_evap_in = np.clip((h3 - hl_e) / hfg_e, 0.0, 1.0)
     x_evap_out = np.where(y >= 0.0, 1.0, np.clip(1.0 + y * cpv_e / hfg_e, 0.0, 1.0))
 
     # evaporator
-    evap_flow = cond.evaporator_airflow_factor
     v_ret = air.specific_volume(cond.return_temp, cond.return_w)
-    air_e = unit.evaporator_airflow * evap_flow / v_ret  # kg dry air / s
-    ua_e = unit.ua_evaporator * evap_flow**AIRFLOW_EXPONENT
+    air_e = unit.evaporator_airflow * cond.evaporator_airflow_factor / v_ret  # kg dry air / s
     t_ref_in = tb_e + x_evap_in * (t_evap - tb_e)
     t_mid_e = 0.5 * (t_ref_in + t_evap)
     h_ret = air.enthalpy(cond.return_temp, cond.return_w)
@@ -221,28 +256,12 @@ def evaluate(unit, cond: Conditions, x: np.ndarray, full: bool = False) -> dict:
     q_wet = air_e * (h_ret - h_sat_mid) * -np.expm1(-ntu_dry / resistance_share)
     wet = q_wet > q_dry
     q_coil = np.where(wet, q_wet, q_dry)
-    f_sh = np.minimum(
-        _zone_fraction(superheat, cond.return_temp - t_evap, mass_flow * cpv_e, ua_e), 0.99
-    )
     q_two_phase_e = (1.0 - f_sh) * q_coil
     r_evap = q_two_phase_e - mass_flow * (np.minimum(h1, hv_e) - h3)
 
     # condenser (head-pressure control slows the fan as the condensing temperature falls)
-    cond_flow = cond.condenser_airflow_factor
-    if unit.min_condensing is not None:
-        fan = np.clip(
-            HEAD_PRESSURE_MIN_FAN
-            + (1 - HEAD_PRESSURE_MIN_FAN) * (t_cond - unit.min_condensing) / HEAD_PRESSURE_BAND_K,
-            HEAD_PRESSURE_MIN_FAN,
-            1.0,
-        )
-        cond_flow = cond_flow * fan
     v_out = air.specific_volume(cond.outdoor_temp, cond.outdoor_w)
     air_c = unit.condenser_airflow * cond_flow / v_out
-    ua_c = unit.ua_condenser * cond_flow**AIRFLOW_EXPONENT * (1.0 - cond.noncondensable)
-    f_sc = np.minimum(
-        _zone_fraction(subcooling, tb_c - cond.outdoor_temp, mass_flow * cpl_c, ua_c), 0.9
-    )
     t_mid_c = 0.5 * (t_cond + tb_c)
     eps_c = -np.expm1(-ua_c / (air_c * CP_AIR))
     q_two_phase_c = (1.0 - f_sc) * eps_c * air_c * CP_AIR * (t_mid_c - cond.outdoor_temp)
@@ -280,7 +299,8 @@ def evaluate(unit, cond: Conditions, x: np.ndarray, full: bool = False) -> dict:
     valve_capacity = unit.valve_flow_area * cond.valve_factor * valve_flow_per_area
     flow_mismatch = 100.0 * (valve_capacity - mass_flow) / unit.design_mass_flow
     if spec.holds_superheat:
-        r_valve = np.minimum(y - spec.design_superheat_K, flow_mismatch)
+        held = np.where(y >= 0.0, superheat, 0.1 * y) - spec.design_superheat_K
+        r_valve = np.minimum(held, flow_mismatch)
     else:
         r_valve = flow_mismatch
 
@@ -315,10 +335,10 @@ def evaluate(unit, cond: Conditions, x: np.ndarray, full: bool = False) -> dict:
         p_cond=p_cond,
         p_discharge=p_discharge,
         p_valve_in=p_valve_in,
-        superheat=superheat,
-        subcooling=subcooling,
+        superheat=np.where(y >= 0.0, superheat, 0.0),
+        subcooling=np.where(z >= 0.0, subcooling, 0.0),
         suction_temp=t_evap + superheat,
-        liquid_temp=tb_c - subcooling,
+        liquid_temp=tb_c - np.where(z >= 0.0, subcooling, 0.0),
         discharge_temp=t_discharge_dew + discharge_superheat,
         mass_flow=mass_flow,
         power=power,
@@ -362,8 +382,8 @@ def initial_guess(unit, cond: Conditions) -> np.ndarray:
         [
             np.clip(t_evap, tab.grid.start + 1.0, cond.return_temp - 1.0),
             np.clip(t_cond, cond.outdoor_temp + 1.0, tab.grid.stop - 1.0),
-            np.full(len(cond), spec.design_superheat_K),
-            np.full(len(cond), spec.design_subcooling_K),
+            np.full(len(cond), unit.design_state["superheat_zone_fraction"] * 100.0),
+            np.full(len(cond), unit.design_state["subcooling_zone_fraction"] * 100.0),
         ]
     )
     return x
@@ -374,8 +394,8 @@ def _project(unit, cond: Conditions, x: np.ndarray) -> np.ndarray:
     tab = unit.refrigerant
     x[:, 0] = np.clip(x[:, 0], tab.grid.start + 0.1, cond.return_temp - 0.05)
     x[:, 1] = np.clip(x[:, 1], np.maximum(cond.outdoor_temp, x[:, 0]) + 0.05, tab.grid.stop - 0.1)
-    x[:, 2] = np.clip(x[:, 2], -150.0, cond.return_temp - x[:, 0] - 0.05)
-    x[:, 3] = np.clip(x[:, 3], -40.0, x[:, 1] - cond.outdoor_temp - 0.05)
+    x[:, 2] = np.clip(x[:, 2], -150.0, 99.0)
+    x[:, 3] = np.clip(x[:, 3], -60.0, 90.0)
     return x
 
 
