@@ -1,4 +1,4 @@
-"""Cycle reconstruction: from a circuit's measured pressures and temperatures to its refrigerant cycle.
+"""Cycle reconstruction: from a circuit's measured pressures and temperatures to its cycle.
 
 State points (the numbering used throughout rimewatch):
 
@@ -98,10 +98,9 @@ def describe_flags(bits: int) -> str:
 class _ExactLookup:
     """The interface of :class:`rimewatch.physics.fast.PressureLookup` on the exact path."""
 
-    _saturation = {"T": exact.saturation_temperature, "h": exact.saturated_enthalpy}
-
     def __init__(self, refrigerant, pressure):
         self.refrigerant, self.p = refrigerant, pressure
+        self._saturation = {"T": exact.saturation_temperature, "h": exact.saturated_enthalpy}
 
     def saturation(self, name: str) -> np.ndarray:
         quantity, phase = name.split("_")

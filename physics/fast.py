@@ -19,9 +19,9 @@ Table coordinates follow the saturation lines so that no table straddles the two
   ``s_dew``, the lever rule between the saturated states gives ``h``).
 
 Any sample outside the tables (above the highest tabulated saturation pressure, near or beyond the
-critical point, hotter than the tables reach) is computed with the exact path instead, so results are
-never extrapolated. Tables are cached on disk per refrigerant, keyed by the CoolProp version and the
-table layout, in ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``.
+critical point, hotter than the tables reach) is computed with the exact path instead, so results
+are never extrapolated. Tables are cached on disk per refrigerant, keyed by the CoolProp version
+and the table layout, in ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``.
 
 References
 ----------
@@ -63,7 +63,7 @@ PHASE_NAMES = ("h", "s", "ln_rho")
 
 
 def cache_directory() -> Path:
-    """Folder for cached tables: ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``, + ``/tables``."""
+    """Folder of cached tables: ``tables/`` in ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``"""
     base = os.environ.get("RIMEWATCH_CACHE_DIR") or Path.home() / ".cache" / "rimewatch"
     return Path(base) / "tables"
 
@@ -482,7 +482,7 @@ def _saturation(quantity: str, refrigerant, pressure, phase: Phase):
 
 
 def saturation_temperature(refrigerant, pressure, phase: Phase = "dew"):
-    """Saturation temperature [K] at ``pressure`` [Pa]; see :func:`refrigerant.saturation_temperature`."""
+    """Saturation temperature [K] at ``pressure`` [Pa], dew or bubble point."""
     return _saturation("T", refrigerant, pressure, phase)
 
 
@@ -502,7 +502,7 @@ def _single_phase(refrigerant, pressure, temperature, name: str):
 
 
 def enthalpy(refrigerant, pressure, temperature):
-    """Specific enthalpy [J/kg] at (P [Pa], T [K]), single phase; see :func:`refrigerant.enthalpy`."""
+    """Specific enthalpy [J/kg] at (P [Pa], T [K]), single phase (NaN inside a glide)."""
     return _single_phase(refrigerant, pressure, temperature, "h")
 
 

@@ -191,7 +191,7 @@ def _quality(phase: Phase) -> float:
 
 
 def critical_point(refrigerant: str | Refrigerant) -> tuple[float, float]:
-    """Critical temperature [K] and critical pressure [Pa] of the refrigerant's equation of state."""
+    """Critical temperature [K] and pressure [Pa] of the refrigerant's equation of state."""
     state = _state(get_refrigerant(refrigerant))
     return state.T_critical(), state.p_critical()
 
@@ -215,7 +215,7 @@ def saturation_pressure(refrigerant, temperature, phase: Phase = "dew"):
 
 
 def saturated_enthalpy(refrigerant, pressure, phase: Phase = "dew"):
-    """Enthalpy [J/kg] of saturated vapour (``"dew"``) or liquid (``"bubble"``) at ``pressure`` [Pa]."""
+    """Enthalpy [J/kg] of saturated vapour (``"dew"``) or liquid (``"bubble"``) at ``pressure``."""
     out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("hmass",))[0]
     return _scalar_or_array(out)
 
