@@ -32,9 +32,7 @@ def main() -> None:
     result = commission_unit(frame, "R410A", configured_units=units)
     full_s = time.perf_counter() - start
     print(f"samples                     {len(frame):>10}")
-    print(
-        f"configuration only          {baseline_s:>10.2f} s  ({baseline.hypotheses_tried} hyp.)"
-    )
+    print(f"configuration only          {baseline_s:>10.2f} s  ({baseline.hypotheses_tried} hyp.)")
     print(
         f"full search + refrigerant   {full_s:>10.2f} s  "
         f"({result.assignment.hypotheses_tried} hypotheses)"
