@@ -3,42 +3,25 @@
 import xml.etree.ElementTree as ET
 
 import numpy as np
-import pandas as pd
 import pytest
 from CoolProp.CoolProp import PropsSI
 from matplotlib.image import imread
 
-from rimewatch.physics import refrigerant as props
+from rimewatch.physics.cycle import cycle_states
 from rimewatch.report.ph_diagram import ph_diagram, save_figure
 
 PSI = 6894.757293168361  # Pa per psi (NIST SP 811)
-
-
-def _states(fluid, p_suction, p_discharge, t_suction, t_liquid, t_discharge):
-    """One cycle's enthalpies from the property layer (state 4 isenthalpic from 3)."""
-    h1 = props.enthalpy(fluid, p_suction, t_suction)
-    s1 = props.entropy(fluid, p_suction, t_suction)
-    _, h2s = props.isentropic_state(fluid, p_discharge, s1)
-    h3 = props.enthalpy(fluid, p_discharge, t_liquid)
-    row = {
-        "h1": h1,
-        "h2": props.enthalpy(fluid, p_discharge, t_discharge),
-        "h2s": h2s,
-        "h3": h3,
-        "h4": h3,
-        "t_evap": props.saturation_temperature(fluid, p_suction),
-        "t_cond": props.saturation_temperature(fluid, p_discharge),
-        "cop": (h1 - h3) / (h2s - h1),
-        "flags": "",
-    }
-    return pd.DataFrame([row])
 
 
 @pytest.fixture(scope="module")
 def r410a_cycle():
     # 118 psig / 340 psig, 50 degF suction, 95 degF liquid, 160 degF discharge
     p_suc, p_dis = 118 * PSI + 101325.0, 340 * PSI + 101325.0
-    return _states("R410A", p_suc, p_dis, 283.15, 308.15, 344.26), p_suc, p_dis
+    states = cycle_states(
+        "R410A", p_suc, p_dis, suction_temp=283.15, liquid_temp=308.15, discharge_temp=344.26,
+        method="exact",
+    )  # fmt: skip
+    return states, p_suc, p_dis
 
 
 def _line(fig, label):
@@ -105,15 +88,24 @@ def test_several_cycles_and_transcritical_r744(tmp_path):
     # R744 gas cooler above the critical pressure (73.8 bar, NIST WebBook) and a subcritical one
     p_suc = np.array([30e5, 30e5])
     p_dis = np.array([90e5, 60e5])
-    states = pd.concat(
-        [
-            _states("R744", 30e5, 90e5, 268.15, 308.15, 380.0),
-            _states("R744", 30e5, 60e5, 268.15, 290.15, 340.0),
-        ],
-        ignore_index=True,
-    )
+    states = cycle_states(
+        "R744", p_suc, p_dis, suction_temp=268.15, liquid_temp=np.array([308.15, 290.15]),
+        discharge_temp=np.array([380.0, 340.0]), method="exact",
+    )  # fmt: skip
+    assert "transcritical" in states["flags"][0] and states["flags"][1] == ""
     fig = ph_diagram("R744", states, p_suc, p_dis, labels=["summer", "winter"])
     labels = [ln.get_label() for ln in fig.axes[0].get_lines()]
     assert "summer" in labels and "winter" in labels
     assert fig.axes[0].get_legend() is not None
     assert save_figure(fig, tmp_path / "co2.png").stat().st_size > 10_000
+
+
+def test_missing_discharge_temperature_draws_the_ideal_compression(tmp_path):
+    # without a discharge temperature h2 is NaN: the loop runs 1 -> 2s -> 3 and still saves
+    p_suc, p_dis = 3.0e5, 10.0e5
+    states = cycle_states("R134a", p_suc, p_dis, suction_temp=275.0, liquid_temp=305.0,
+                          method="exact")  # fmt: skip
+    fig = ph_diagram("R134a", states, p_suc, p_dis, labels=["no T2"])
+    loop = _line(fig, "no T2")
+    assert loop.get_xdata()[1] == states["h2s"].iloc[0] / 1e3
+    assert save_figure(fig, tmp_path / "no-t2.svg").stat().st_size > 10_000
