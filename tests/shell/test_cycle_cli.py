@@ -190,3 +190,30 @@ def test_plot_written_and_json_stays_parseable(tmp_path):
 def test_help_has_an_example():
     result = run("cycle", "--help")
     assert result.exit_code == 0 and "Example:" in result.output and "psig" in result.output
+
+
+def test_liquid_warmer_than_condensing_is_a_warning():
+    args = [*EXAMPLE]
+    args[args.index("95 degF")] = "110 degF"  # bubble point at 340 psig is about 105 degF
+    result = run(*args)
+    assert result.exit_code == 0
+    assert "warning: liquid warmer than the condensing bubble point" in result.output
+
+
+def test_zeotropic_evaporator_inlet_state_matches_a_coolprop_ph_flash():
+    # R407C glides ~6 K: state 4's temperature and entropy, interpolated by quality in the command,
+    # checked against CoolProp's own (p, h) flash of the blend.
+    from CoolProp.CoolProp import PropsSI
+
+    result = run(
+        "cycle", "-r", "R407C", "--suction-pressure", "4.2 bar(g)", "--discharge-pressure",
+        "17 bar(g)", "--suction-temp", "8 degC", "--liquid-temp", "36 degC", "--format", "json",
+    )  # fmt: skip
+    state4 = json.loads(result.stdout)["states"]["4"]
+    p4, h4 = state4["pressure"]["value"], state4["enthalpy"]["value"]
+    assert state4["temperature"]["value"] == pytest.approx(
+        PropsSI("T", "P", p4, "H", h4, "R407C"), abs=0.3
+    )
+    assert state4["entropy"]["value"] == pytest.approx(
+        PropsSI("S", "P", p4, "H", h4, "R407C"), rel=1e-3
+    )
