@@ -10,6 +10,7 @@ from pathlib import Path
 import click
 import numpy as np
 
+from rimewatch.commands.virtual_options import virtual_sensor_options, virtual_sensors_block
 from rimewatch.ingest.units import (
     UnitError,
     atmospheric_pressure,
@@ -369,6 +370,7 @@ def render_json(result: dict, given: dict[str, str], atmosphere: float) -> str:
     show_default=True,
 )
 @click.option("--plot", type=click.Path(dir_okay=False), help="Write the p-h diagram (.png/.svg).")
+@virtual_sensor_options
 def cycle(
     refrigerant,
     suction_pressure,
@@ -380,6 +382,7 @@ def cycle(
     elevation,
     output_format,
     plot,
+    **virtual_options,
 ):
     """Rebuild one refrigerant cycle from gauge and probe readings.
 
@@ -424,10 +427,12 @@ def cycle(
         readings[name], units[name] = _reading(option, text, kind, atmosphere)
 
     result = analyse(fluid, readings)
+    virtual = virtual_sensors_block(fluid, result, readings, virtual_options)
     display = _display_units(units)
     if output_format == "json":
         given = {name: text for name, (text, _) in options.items() if text is not None}
-        click.echo(render_json(result, given, atmosphere))
+        text = render_json(result, given, atmosphere)
+        click.echo(text if virtual is None else virtual.merge_json(text))
     else:
         from rich.console import Console
 
@@ -435,6 +440,8 @@ def cycle(
         if not console.is_terminal:  # pipes and files: wide enough for the derived table
             console = Console(highlight=False, width=110)
         render_table(result, display, atmosphere, console)
+        if virtual is not None:
+            virtual.render(console, display.unit_system)
     if plot is not None:
         written = _write_plot(fluid, result, readings, display, plot)
         # keep stdout pure JSON in json mode
