@@ -152,19 +152,17 @@ def _localize(naive: pd.Series, zone: str, reasons, local_mask, fold: _FoldState
         )
     ambiguous = (summer != winter).to_numpy() & ~nonexistent & naive.notna().to_numpy()
     take_winter = np.zeros(len(naive), dtype=bool)
-    previous_ambiguous = fold.previous_local is not None
-    for i in range(len(naive)):
-        if not ambiguous[i]:
-            if previous_ambiguous:
-                fold.previous_local, fold.second_pass = None, False
-            previous_ambiguous = False
-            continue
+    carried = fold.previous_local is not None  # the previous chunk ended inside the hour
+    for i in np.flatnonzero(ambiguous):
+        if not (ambiguous[i - 1] if i > 0 else carried):  # a new repeated hour begins
+            fold.previous_local, fold.second_pass = None, False
         local = naive.iloc[i]
         if fold.previous_local is not None and local < fold.previous_local:
             fold.second_pass = True
         take_winter[i] = fold.second_pass
         fold.previous_local = local
-        previous_ambiguous = True
+    if len(naive) and not ambiguous[-1]:
+        fold.previous_local, fold.second_pass = None, False
     if not ambiguous.any():
         return summer.dt.tz_convert("UTC")
     chosen = summer.where(~take_winter, winter)
@@ -177,23 +175,28 @@ def _plausible_range(role: str) -> tuple[float, float]:
 
 def _decode_cells(raw: pd.Series, target: ColumnTarget, fmt: CsvFormat, atmosphere_Pa: float):
     """Raw cell strings -> (SI values, per-cell reason or "", empty mask)."""
-    text = raw.astype(str).str.strip()
-    empty = text.isin(fmt.missing_values).to_numpy() | raw.isna().to_numpy()
-    reasons = np.full(len(text), "", dtype=object)
+    reasons = np.full(len(raw), "", dtype=object)
     if unit_kind(target.unit) == "status":
+        text = raw.astype(str).str.strip()
+        empty = text.isin(fmt.missing_values).to_numpy() | raw.isna().to_numpy()
         values = np.asarray(to_si(text.to_numpy(dtype=object), target.unit), dtype=float)
         bad_word = np.isnan(values) & ~empty
         for i in np.flatnonzero(bad_word):
             reasons[i] = f"{text.iloc[i][:40]!r} is not an on/off value"
         return values, reasons, empty
-    if fmt.decimal != ".":
-        text = text.str.replace(fmt.decimal, ".", regex=False)
+    text = raw if fmt.decimal == "." else raw.str.replace(fmt.decimal, ".", regex=False)
+    # to_numeric runs in C and ignores surrounding blanks; only cells it cannot read are looked at.
     numbers = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
     values = np.asarray(to_si(numbers, target.unit, atmospheric_pressure=atmosphere_Pa))
     low, high = _plausible_range(target.role)
+    unread = np.flatnonzero(np.isnan(numbers))
+    empty = np.zeros(len(raw), dtype=bool)
+    explicit_nan = np.zeros(len(raw), dtype=bool)
+    if len(unread):
+        unread_text = raw.iloc[unread].fillna("").astype(str).str.strip()
+        empty[unread] = unread_text.isin(fmt.missing_values).to_numpy()
+        explicit_nan[unread] = unread_text.str.lower().isin(("nan", "+nan", "-nan")).to_numpy()
     parse_failed = np.isnan(numbers) & ~empty
-    lowered = text.str.lower()
-    explicit_nan = lowered.isin(("nan", "+nan", "-nan")).to_numpy()
     not_finite = ~np.isfinite(values) & ~np.isnan(numbers)
     out_of_range = np.isfinite(values) & ((values < low) | (values > high)) & ~empty
     for i in np.flatnonzero(parse_failed | not_finite | out_of_range):
