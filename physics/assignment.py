@@ -764,8 +764,10 @@ def _score(ev, hyp, checks, roles, refined: bool) -> RankedHypothesis:
             with np.errstate(invalid="ignore", divide="ignore"):
                 ok, quantity = check(ev, hyp, sample_set, roles)
             fraction = float(np.mean(ok[valid]))
-            finite = quantity[valid][np.isfinite(quantity[valid])]
-            residual = float(np.median(finite)) if finite.size else float("nan")
+            residual = float("nan")
+            if refined:  # the first stage ranks by fraction only; medians are for the report
+                finite = quantity[valid][np.isfinite(quantity[valid])]
+                residual = float(np.median(finite)) if finite.size else residual
         results.append(ConstraintResult(constraint, count, fraction, residual))
         total += constraint.weight * fraction
         weights += constraint.weight
