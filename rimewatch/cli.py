@@ -22,6 +22,7 @@ COMMANDS: dict[str, str] = {
     "apply": "rimewatch.commands.apply:apply",
     "import": "rimewatch.commands.import_csv:import_command",
     "points": "rimewatch.commands.points:points",
+    "simulate": "rimewatch.commands.simulate:simulate",
     "quarantine": "rimewatch.commands.quarantine:quarantine",
     "commission": "rimewatch.commands.commission:commission",
 }
