@@ -304,20 +304,46 @@ def _describe(error: dict) -> str:
     return message
 
 
-def format_validation_error(path: Path | str, error: ValidationError) -> str:
-    """One line per problem: ``FILE: field.path: what is wrong``."""
-    lines = [f"{path}: {_field_path(e['loc'])}: {_describe(e)}" for e in error.errors()]
+def _yaml_line(node: yaml.Node | None, location: tuple) -> int | None:
+    """The 1-based line of the deepest YAML node along a pydantic error location."""
+    line = None
+    for part in location:
+        if node is None:
+            break
+        line = node.start_mark.line + 1
+        if isinstance(node, yaml.MappingNode) and isinstance(part, str):
+            node = next((v for k, v in node.value if k.value == part), None)
+            if node is None:  # an unknown or missing key: point at the key, else the parent
+                break
+        elif isinstance(node, yaml.SequenceNode) and isinstance(part, int):
+            node = node.value[part] if part < len(node.value) else None
+    if node is not None:
+        line = node.start_mark.line + 1
+    return line
+
+
+def format_validation_error(
+    path: Path | str, error: ValidationError, root: yaml.Node | None = None
+) -> str:
+    """One line per problem: ``FILE: field.path: what is wrong (line N)``."""
+    lines = []
+    for problem in error.errors():
+        line = _yaml_line(root, problem["loc"]) if root is not None else None
+        where = f" (line {line})" if line else ""
+        lines.append(f"{path}: {_field_path(problem['loc'])}: {_describe(problem)}{where}")
     return "\n".join(lines)
 
 
-def parse_site(document: Any, path: Path | str = "<site>") -> SiteConfig:
-    """Validate an already-parsed YAML document."""
+def parse_site(
+    document: Any, path: Path | str = "<site>", root: yaml.Node | None = None
+) -> SiteConfig:
+    """Validate an already-parsed YAML document (``root``: its node tree, for line numbers)."""
     if not isinstance(document, dict):
         raise SiteConfigError(f"{path}: the file must hold a mapping with 'site' and 'units'")
     try:
         config = SiteConfig.model_validate(document)
     except ValidationError as exc:
-        raise SiteConfigError(format_validation_error(path, exc)) from None
+        raise SiteConfigError(format_validation_error(path, exc, root)) from None
     config._path = Path(path)
     return config
 
@@ -337,12 +363,13 @@ def load_site(path: Path | str) -> SiteConfig:
         raise SiteConfigError(f"{path}: cannot read the site file: {exc.strerror}") from None
     try:
         document = yaml.safe_load(text)
+        root = yaml.compose(text, Loader=yaml.SafeLoader)
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark else ""
         problem = getattr(exc, "problem", None) or str(exc)
         raise SiteConfigError(f"{path}: {where}not valid YAML: {problem}") from None
-    return parse_site(document, path)
+    return parse_site(document, path, root)
 
 
 def safety_notes(config: SiteConfig) -> list[str]:

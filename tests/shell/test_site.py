@@ -163,3 +163,20 @@ def test_apply_upserts_reports_and_retires(db_url, tmp_path):
     # back in the file: restored, not duplicated
     assert "changed point rtu-1/suction_temp: retired True -> False" in apply_site(engine, config)
     assert len(active_points(engine)) == 2
+
+
+def test_errors_give_the_yaml_line(tmp_path):
+    path = tmp_path / "lines.yaml"
+    path.write_text(
+        "site:\n  name: X\nunits:\n  - id: a\n    name: A\n    kind: rooftop_unit\n"
+        "    refrigerant: R410A\n    expansion_device: txv\n    nominal_capacity_kW: 3\n"
+        "    capacty: 3\n    points:\n      - role: suction_temp\n        unit: furlongs\n"
+        "        mqtt_topic: u\n"
+    )
+    with pytest.raises(SiteConfigError) as caught:
+        load_site(path)
+    lines = sorted(str(caught.value).splitlines())
+    assert lines[0].startswith(f"{path}: units[0].capacty: unknown field")
+    assert lines[0].endswith("(line 10)")
+    assert lines[1].startswith(f"{path}: units[0].points[0].unit: unknown unit 'furlongs'")
+    assert lines[1].endswith("(line 13)")
