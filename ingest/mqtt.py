@@ -1,11 +1,12 @@
 """The MQTT ingester: a paho-mqtt 2 subscriber that acknowledges a reading only once it is stored.
 
-Threads: paho's network thread runs ``on_message``, which only puts the message on a queue. One
-writer thread takes messages off the queue, decodes them (:mod:`rimewatch.ingest.payload`), writes
-the batch's readings and rejections in one transaction through a :class:`Sink`, commits, and only
-then acknowledges each message (``manual_ack``). A crash at any point leaves unacknowledged messages
-with the broker, which redelivers them; the store ignores readings it already has, so redelivery is
-harmless.
+Threads: paho's network thread runs ``on_message``, which only puts the message on a queue. A
+decoder thread takes messages off the queue, decodes them (:mod:`rimewatch.ingest.payload`) and
+gathers them into batches; a writer thread stores each batch's readings and rejections in one
+transaction through a :class:`Sink`, commits, and only then acknowledges each of its messages
+(``manual_ack``). The two overlap: SQLite releases the GIL while it writes. A crash at any point
+leaves unacknowledged messages with the broker, which redelivers them; the store ignores readings
+it already has, so redelivery is harmless.
 
 The session is persistent (MQTT 5 ``clean_start=False`` with a session expiry interval and a fixed
 client id), so messages published while the ingester is down wait at the broker, up to its
@@ -186,6 +187,8 @@ class Ingester:
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
         self._stopping = threading.Event()
         self._session = 0  # counts connections: an ack is only valid on the connection it came on
+        self._batches: queue.Queue = queue.Queue(maxsize=2)  # decoded batches awaiting commit
+        self._decoder = threading.Thread(target=self._decode_loop, name="rimewatch-decoder")
         self._writer = threading.Thread(target=self._write_loop, name="rimewatch-writer")
         self.client = self._make_client()
 
@@ -215,6 +218,7 @@ class Ingester:
         properties.SessionExpiryInterval = s.session_expiry_s
         properties.ReceiveMaximum = s.receive_maximum
         self._writer.start()
+        self._decoder.start()
         self.client.connect_async(
             s.host, s.port, keepalive=s.keepalive_s, clean_start=False, properties=properties
         )
@@ -229,7 +233,9 @@ class Ingester:
         """
         self._stopping.set()
         self._queue.put(_STOP)
-        self._writer.join(timeout_s)
+        end = time.monotonic() + timeout_s
+        self._decoder.join(timeout_s)
+        self._writer.join(max(end - time.monotonic(), 0.0))
         finished = not self._writer.is_alive()
         self.client.disconnect()
         self.client.loop_stop()
@@ -279,9 +285,9 @@ class Ingester:
             (message.mid, message.qos, message.topic, message.payload, self._session, time.time())
         )
 
-    # writer thread
+    # decoder and writer threads
 
-    def _write_loop(self) -> None:
+    def _decode_loop(self) -> None:
         s = self.settings
         get = self._queue.get
         decode = self.decoder.decode
@@ -312,9 +318,20 @@ class Ingester:
                 held.append((mid, qos, session))
                 if len(held) < s.batch_max_messages and time.monotonic() < deadline:
                     continue
-            if held and not self._flush(readings, rejects, held, give_up=self._stopping):
-                return  # stopping while the store is failing: leave the messages unacknowledged
-            readings, rejects, held = [], [], []
+            if held:
+                self._batches.put((readings, rejects, held))
+                readings, rejects, held = [], [], []
+        self._batches.put(_STOP)
+
+    def _write_loop(self) -> None:
+        storing = True
+        while True:
+            batch = self._batches.get()
+            if batch is _STOP:
+                return
+            if storing:
+                # False: stopping while the store fails; later batches stay unacknowledged too
+                storing = self._flush(*batch, give_up=self._stopping)
 
     def _flush(self, readings, rejects, held, give_up: threading.Event) -> bool:
         delay_s = 0.5
