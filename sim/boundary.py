@@ -65,7 +65,7 @@ def local_hours(times: pd.DatetimeIndex, timezone: str) -> np.ndarray:
 
 def weather(times: pd.DatetimeIndex, climate: Climate, rng: np.random.Generator, timezone: str):
     """Outdoor dry-bulb [K] and dew point [K] at each time."""
-    day_of_year = np.asarray(times.dayofyear, float) + local_hours(times, "UTC") / 24.0
+    day_of_year = np.asarray(times.day_of_year, float) + local_hours(times, "UTC") / 24.0
     seasonal = climate.annual_mean_C + climate.annual_amplitude_K * np.cos(
         2 * np.pi * (day_of_year - WARMEST_DAY_OF_YEAR) / 365.25
     )

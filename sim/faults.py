@@ -1,7 +1,7 @@
 """Injected faults: what, how strong, from when, and how each one enters the unit model.
 
 A fault has a code (design.md's fault codes), a severity, an onset (UTC) and a ramp: the severity
-rises linearly from 0 at the onset to its full value ``ramp_days`` later (0 = a step). Severity per
+rises linearly from 0 at the onset to its full value ``ramp_days`` later (0 = a step). The
 severity per code (all dimensionless, 0 = healthy):
 
 =========================  ===============================================================
@@ -141,11 +141,16 @@ def parse_fault(text: str, default_onset: datetime | None = None) -> FaultSpec:
     """Parse ``code:key=value:...`` (keys: severity, onset, ramp, point, kind)."""
     code, *parts = text.strip().split(":")
     fields: dict[str, str] = {}
+    key = None
     for part in parts:
-        key, sep, value = part.partition("=")
-        if not sep or not key:
+        name, sep, value = part.partition("=")
+        if not sep and key == "onset":  # a time of day: the colon belonged to the onset
+            fields[key] += ":" + part.strip()
+            continue
+        if not sep or not name:
             raise FaultError(f"fault {text!r}: expected key=value after the code, got {part!r}")
-        fields[key.strip()] = value.strip()
+        key = name.strip()
+        fields[key] = value.strip()
     unknown = set(fields) - {"severity", "onset", "ramp", "point", "kind"}
     if unknown:
         raise FaultError(

@@ -175,7 +175,7 @@ def simulate_unit(scenario: Scenario, unit: UnitParameters | None = None):
     t_out, t_dew_out = weather(times, climate, rng, scenario.timezone)
     w_out = air.humidity_ratio(t_dew_out, np.ones(n))
     hours = local_hours(times, scenario.timezone)
-    weekday = np.asarray(times.tz_convert(scenario.timezone).dayofweek < 5)
+    weekday = np.asarray(times.tz_convert(scenario.timezone).day_of_week < 5)
 
     design_sensible = unit.design_state["sensible_capacity"]
     zone = ZoneModel.for_unit(spec.kind, design_sensible, spec.rating_outdoor_C + 273.15)
