@@ -49,6 +49,10 @@ DERIVED = (
     ("quality_evaporator_inlet", "evaporator inlet quality", "ratio", "x(p1, h4)"),
 )
 
+# [K] -100 to 200 degC: wider than any refrigerant line runs (common practice: discharge lines
+# stay below ~150 degC to protect the oil)
+PLAUSIBLE_LINE_TEMPERATURE = (173.15, 473.15)
+
 SI_UNIT_OF_KIND = {
     "pressure": "Pa",
     "temperature": "K",
@@ -131,6 +135,8 @@ def _reading(option: str, text: str | None, kind: str, atmosphere: float) -> tup
         value, unit = parse_quantity(text, kind=kind)
     except UnitError as error:
         raise click.ClickException(f"{option}: {error}") from None
+    if not math.isfinite(value):
+        raise click.ClickException(f"{option}: {text!r} is not a finite number")
     si = to_si(value, unit, atmospheric_pressure=atmosphere)
     if kind == "pressure" and si <= 0:
         raise click.ClickException(f"{option}: {text!r} is below absolute zero pressure")
@@ -223,6 +229,25 @@ def analyse(refrigerant, readings: dict[str, float]) -> dict:
         )
     if math.isnan(readings["suction_temp"]):
         notes.append("no suction temperature: superheat and states 1, 2s are not available")
+    low, high = PLAUSIBLE_LINE_TEMPERATURE
+    for reading in ("suction_temp", "liquid_temp", "discharge_temp"):
+        if readings[reading] < low or readings[reading] > high:  # False for NaN
+            notes.append(
+                f"{reading.replace('_', ' ')} is outside -100..200 degC, beyond what a "
+                "refrigerant line reaches: check the reading"
+            )
+    inputs_of_state = {
+        "1": "suction_temp",
+        "2": "discharge_temp",
+        "2s": "suction_temp",
+        "3": "liquid_temp",
+    }
+    for name, reading in inputs_of_state.items():
+        if not math.isnan(readings[reading]) and math.isnan(states[name][2]):
+            notes.append(
+                f"state {name} ({STATE_NAMES[name]}) could not be computed: the reading may be "
+                "outside the refrigerant's property range or at odds with the others"
+            )
     return {
         "refrigerant": fluid,
         "states": {

@@ -130,6 +130,7 @@ def test_elevation_changes_gauge_conversion():
         (["--suction-temp", "50 psig"], "not a temperature unit"),
         (["--suction-pressure", "lots"], "cannot read"),
         (["--suction-pressure", "-20 psig"], "below absolute zero"),
+        (["--suction-pressure", "1e400 psig"], "not a finite number"),
         (["--refrigerant", "R999"], "supported: R22"),
         (["--plot", "cycle.pdf"], ".png or .svg"),
         (["--elevation", "40000 ft"], "--elevation"),
@@ -217,3 +218,14 @@ def test_zeotropic_evaporator_inlet_state_matches_a_coolprop_ph_flash():
     assert state4["entropy"]["value"] == pytest.approx(
         PropsSI("S", "P", p4, "H", h4, "R407C"), rel=1e-3
     )
+
+
+def test_a_reading_outside_the_property_range_is_said():
+    # 5000 degF is far above the R410A equation of state's validity (CoolProp Tmax ~ 500 K)
+    args = [*EXAMPLE]
+    args[args.index("50 degF")] = "5000 degF"
+    result = run(*args)
+    assert result.exit_code == 0
+    flat = " ".join(result.output.split())
+    assert "suction temp is outside -100..200 degC" in flat
+    assert "state 2s (ideal discharge) could not be computed" in flat
