@@ -11,13 +11,13 @@ from datetime import UTC, datetime
 
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 
-import numpy as np  # noqa: E402
-from scipy.optimize import root  # noqa: E402
+import numpy as np
+from scipy.optimize import root
 
-from rimewatch.sim import model  # noqa: E402
-from rimewatch.sim.equipment import default_unit, size_unit  # noqa: E402
-from rimewatch.sim.faults import parse_fault  # noqa: E402
-from rimewatch.sim.scenario import Scenario, simulate_unit  # noqa: E402
+from rimewatch.sim import model
+from rimewatch.sim.equipment import default_unit, size_unit
+from rimewatch.sim.faults import parse_fault
+from rimewatch.sim.scenario import Scenario, simulate_unit
 
 SAMPLE = 200
 
@@ -34,7 +34,7 @@ def main():
         faults=(parse_fault("low_charge:severity=0.2:onset=2026-06-01:ramp=30d"),),
     )
     started = time.perf_counter()
-    readings, truth = simulate_unit(scenario, unit)
+    _, truth = simulate_unit(scenario, unit)
     elapsed = time.perf_counter() - started
     states = truth.states
     running = int(states["compressor_on"].sum())
