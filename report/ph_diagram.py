@@ -269,7 +269,8 @@ def _draw_isotherms(ax, fluid, p_low, p_high, scale, unit_system):
         if h.size < 2:
             continue
         x, y = h / scale["h"], p / scale["p"]
-        ax.plot(x, y, color=ISOTHERM_COLOUR, lw=0.7, zorder=1, label="_isotherm")
+        gid = f"isotherm {float(temperature)!r} K"
+        ax.plot(x, y, color=ISOTHERM_COLOUR, lw=0.7, zorder=1, label="_isotherm", gid=gid)
         inside = np.flatnonzero((x > x_min) & (x < x_max) & (y <= y_max))
         if inside.size:
             top = inside[np.argmax(y[inside])]  # label where the isotherm leaves the top

@@ -109,3 +109,21 @@ def test_missing_discharge_temperature_draws_the_ideal_compression(tmp_path):
     loop = _line(fig, "no T2")
     assert loop.get_xdata()[1] == states["h2s"].iloc[0] / 1e3
     assert save_figure(fig, tmp_path / "no-t2.svg").stat().st_size > 10_000
+
+
+def test_isotherms_follow_coolprop_enthalpy(r410a_cycle):
+    states, p_suc, p_dis = r410a_cycle
+    fig = ph_diagram("R410A", states, p_suc, p_dis)
+    isotherms = [
+        ln for ln in fig.axes[0].get_lines() if (ln.get_gid() or "").startswith("isotherm")
+    ]
+    assert len(isotherms) >= 3
+    for line in isotherms:
+        temperature = float(line.get_gid().split()[1])
+        p = np.asarray(line.get_ydata()) * 1e5
+        h = np.asarray(line.get_xdata()) * 1e3
+        # away from saturation, each point is CoolProp's h(p, T) (PropsSI, independent call path)
+        p_sat = PropsSI("P", "T", temperature, "Q", 0, "R410A") if temperature < 344.0 else np.inf
+        single_phase = np.abs(p / p_sat - 1.0) > 0.02
+        expected = PropsSI("H", "P", p[single_phase], "T", temperature, "R410A")
+        np.testing.assert_allclose(h[single_phase], expected, rtol=1e-6)
