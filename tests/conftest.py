@@ -40,7 +40,13 @@ class Broker:
     as on a production broker.
     """
 
-    def __init__(self, directory: Path, port: int | None = None):
+    def __init__(
+        self,
+        directory: Path,
+        port: int | None = None,
+        extra_config: str = "",
+        allow_anonymous: bool = True,
+    ):
         if MOSQUITTO is None:
             pytest.skip(
                 "MOSQUITTO BROKER NOT FOUND: the MQTT tests are SKIPPED. "
@@ -53,7 +59,7 @@ class Broker:
         self.config = directory / "mosquitto.conf"
         self.config.write_text(
             f"listener {self.port} 127.0.0.1\n"
-            "allow_anonymous true\n"
+            f"allow_anonymous {str(allow_anonymous).lower()}\n"
             "persistence true\n"
             f"persistence_location {directory}/\n"
             "autosave_interval 1\n"
@@ -63,6 +69,7 @@ class Broker:
             # started as root, Mosquitto switches to user "mosquitto", who cannot write here
             + ("user root\n" if os.geteuid() == 0 else "")
             + "log_type error\nlog_type warning\nlog_type notice\n"
+            + extra_config
         )
         self.process: subprocess.Popen | None = None
 

@@ -6,6 +6,7 @@ from __future__ import annotations
 import itertools
 import json
 import os
+import shutil
 import signal
 import sqlite3
 import subprocess
@@ -19,9 +20,15 @@ import yaml
 from paho.mqtt.enums import CallbackAPIVersion
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
+from sqlalchemy import text
 
-from rimewatch.ingest.mqtt import MqttSettings, subscription_filters
-from rimewatch.ingest.payload import MAX_ABS_VALUE
+from rimewatch.ingest.mqtt import Ingester, MqttSettings, StoreSink, subscription_filters
+from rimewatch.ingest.payload import MAX_ABS_VALUE, decoder_for_points
+from rimewatch.site import parse_site
+from rimewatch.site_sync import apply_site
+from rimewatch.store import active_points, connect, pending_quarantine
+
+pytest_plugins = ["db_backends"]
 
 # Reading i is at BASE_MS + i [ms]: an hour ago, inside the decoder's age limit.
 BASE_MS = (int(time.time()) - 3600) * 1000
@@ -33,10 +40,10 @@ def fresh_prefix() -> str:
     return f"t{os.getpid()}-{next(_ids)}"
 
 
-def write_site(path: Path, prefix: str) -> None:
+def site_document(prefix: str) -> dict:
     """One unit: suction pressure in kPa(g) on an exact topic (the numbered readings), outdoor air
     in degC on a wildcard topic, and return air on a topic full of SQL syntax."""
-    site = {
+    return {
         "site": {"name": f"Quay Street Deli {prefix}", "timezone": "UTC", "elevation_m": 0},
         "units": [
             {
@@ -62,7 +69,10 @@ def write_site(path: Path, prefix: str) -> None:
             }
         ],
     }
-    path.write_text(yaml.safe_dump(site))
+
+
+def write_site(path: Path, prefix: str) -> None:
+    path.write_text(yaml.safe_dump(site_document(prefix)))
 
 
 class Listener:
@@ -378,3 +388,127 @@ def test_batch_larger_than_the_inflight_window_refused():
 def test_overlapping_filters_subscribed_once():
     assert subscription_filters(["a/b/c", "a/+/d", "x/y", "a/#"], ["a/#"]) == ["x/y", "a/#"]
     assert subscription_filters(["a/#"], ["a/+"]) == ["a/#", "a/+"]
+
+
+def ingester_for(url: str, prefix: str, settings: MqttSettings) -> tuple[Ingester, object]:
+    engine = connect(url)
+    apply_site(engine, parse_site(site_document(prefix)))
+    points = active_points(engine, site=site_document(prefix)["site"]["name"])
+    sink = StoreSink(engine, points[0].site_id)
+    return Ingester(settings, decoder_for_points(points), sink), engine
+
+
+def wait_until(condition, timeout_s: float = 15.0) -> bool:
+    end = time.monotonic() + timeout_s
+    while not condition():
+        if time.monotonic() > end:
+            return False
+        time.sleep(0.02)
+    return True
+
+
+@pytest.mark.mqtt
+def test_ingester_in_process_on_each_database(db_url, mosquitto):
+    """The same code path on SQLite and PostgreSQL (the latter skipped loudly when unreachable)."""
+    prefix = fresh_prefix()
+    settings = MqttSettings(host=mosquitto.host, port=mosquitto.port, client_id=f"ingest-{prefix}")
+    ingester, engine = ingester_for(db_url, prefix, settings)
+    ingester.start()
+    try:
+        assert ingester.subscribed.wait(10)
+        messages = numbered(prefix, range(300))
+        publish(mosquitto, [*messages, (f"{prefix}/rtu-1/ps", b"not a number")])
+        publish(mosquitto, messages[:50])  # a sender repeating itself stores nothing twice
+        assert wait_until(lambda: ingester.stats.messages == 351)
+    finally:
+        assert ingester.stop()
+    with engine.connect() as conn:
+        stored = conn.execute(
+            text("SELECT count(*), count(DISTINCT ts_ms), min(value) FROM readings")
+        ).one()
+    assert tuple(stored) == (300, 300, pytest.approx(101325.0))  # 0 kPa(g) = 1 atm (ISO 2533)
+    assert ingester.stats.readings_duplicate == 50
+    (entry,) = pending_quarantine(engine, source="mqtt")
+    assert entry.origin == f"{prefix}/rtu-1/ps" and entry.payload == b"not a number"
+    assert "is not a number" in entry.reason
+    engine.dispose()
+
+
+def _openssl(*args: str, cwd: Path) -> None:
+    subprocess.run(["openssl", *args], cwd=cwd, check=True, capture_output=True)
+
+
+@pytest.fixture
+def tls_broker(tmp_path):
+    """A broker with TLS (our own CA) and a password file: user "ingest", password "sesame-7"."""
+    missing = [tool for tool in ("openssl", "mosquitto_passwd") if shutil.which(tool) is None]
+    if missing:
+        pytest.skip(f"TLS BROKER TEST SKIPPED: {', '.join(missing)} not found")
+    from conftest import Broker
+
+    certs = tmp_path / "certs"
+    certs.mkdir()
+    _openssl("req", "-x509", "-newkey", "rsa:2048", "-nodes", "-days", "2", "-subj",
+             "/CN=rimewatch test CA", "-keyout", "ca.key", "-out", "ca.crt", cwd=certs)  # fmt: skip
+    _openssl("req", "-newkey", "rsa:2048", "-nodes", "-subj", "/CN=localhost",
+             "-keyout", "server.key", "-out", "server.csr", cwd=certs)  # fmt: skip
+    (certs / "san.ext").write_text("subjectAltName=DNS:localhost,IP:127.0.0.1\n")
+    _openssl("x509", "-req", "-in", "server.csr", "-CA", "ca.crt", "-CAkey", "ca.key",
+             "-CAcreateserial", "-days", "2", "-extfile", "san.ext", "-out", "server.crt",
+             cwd=certs)  # fmt: skip
+    passwords = tmp_path / "passwords"
+    passwords.touch()
+    subprocess.run(
+        ["mosquitto_passwd", "-b", str(passwords), "ingest", "sesame-7"],
+        check=True,
+        capture_output=True,
+    )
+    broker = Broker(
+        tmp_path / "broker",
+        extra_config=f"cafile {certs}/ca.crt\ncertfile {certs}/server.crt\n"
+        f"keyfile {certs}/server.key\npassword_file {passwords}\n",
+        allow_anonymous=False,
+    )
+    broker.ca_file = str(certs / "ca.crt")
+    broker.start()
+    yield broker
+    broker.stop()
+
+
+@pytest.mark.mqtt
+def test_tls_and_credentials_from_environment(tls_broker, tmp_path, caplog):
+    prefix = fresh_prefix()
+    env = {
+        "RIMEWATCH_MQTT_USERNAME": "ingest",
+        "RIMEWATCH_MQTT_PASSWORD": "wrong",
+        "RIMEWATCH_MQTT_CA_FILE": tls_broker.ca_file,
+    }
+    url = f"sqlite:///{tmp_path / 'plant.db'}"
+    common = {"host": "localhost", "port": tls_broker.port, "client_id": f"ingest-{prefix}"}
+
+    refused, engine = ingester_for(url, prefix, MqttSettings.from_env(env, **common))
+    refused.start()
+    try:
+        assert not refused.connected.wait(2.0)
+    finally:
+        refused.stop()
+    assert "refused the connection: Not authorized" in caplog.text  # MQTT 5 reason code 135
+    engine.dispose()
+
+    env["RIMEWATCH_MQTT_PASSWORD"] = "sesame-7"
+    ingester, engine = ingester_for(url, prefix, MqttSettings.from_env(env, **common))
+    ingester.start()
+    try:
+        assert ingester.subscribed.wait(10)
+        client = mqtt.Client(CallbackAPIVersion.VERSION2, protocol=mqtt.MQTTv5)
+        client.username_pw_set("ingest", "sesame-7")
+        client.tls_set(ca_certs=tls_broker.ca_file)
+        client.connect("localhost", tls_broker.port)
+        client.loop_start()
+        client.publish(f"{prefix}/rtu-1/ps", b"250", qos=1).wait_for_publish(10)
+        client.disconnect()
+        client.loop_stop()
+        assert wait_until(lambda: ingester.stats.readings_stored == 1)
+    finally:
+        ingester.stop()
+    engine.dispose()
