@@ -24,7 +24,7 @@ import pandas as pd
 from rimewatch.ingest.csv_import import import_csv
 from rimewatch.site import parse_site
 from rimewatch.site_sync import apply_site, csv_targets
-from rimewatch.store import connect
+from rimewatch.store import connect, find_unit_id, read_unit_frame
 
 ROLES = {
     "suction_pressure": "psig",
@@ -111,7 +111,25 @@ def main(rows: int) -> None:
         replay_s = time.perf_counter() - start
         assert again.readings_stored == 0
 
+        engine = connect(f"sqlite:///{db}")
+        unit_id = find_unit_id(engine, "Bench", "rtu-1")
+        start = time.perf_counter()
+        frame = read_unit_frame(engine, unit_id, "2022-12-31T00:00Z", "2024-01-01T00:00Z")
+        frame_s = time.perf_counter() - start
+        frame_readings = int(frame.count().sum())
+        engine.dispose()
+
         with sqlite3.connect(db) as conn:
+            start = time.perf_counter()
+            unit_rows = conn.execute(
+                "SELECT p.role, r.ts_ms, r.value FROM readings r JOIN points p "
+                "ON p.id = r.point_id WHERE p.unit_id = ?",
+                (unit_id,),
+            ).fetchall()
+            pd.DataFrame(unit_rows, columns=["role", "ts_ms", "value"]).pivot(
+                index="ts_ms", columns="role", values="value"
+            )
+            pivot_s = time.perf_counter() - start
             tuples = conn.execute("SELECT point_id, ts_ms, value FROM readings").fetchall()
         raw = folder / "raw.db"
         conn = sqlite3.connect(raw)
@@ -141,6 +159,10 @@ def main(rows: int) -> None:
     )
     print(f"{'baseline: sqlite3 executemany only':<42}{'':>12}{readings / raw_s:>14,.0f}")
     print(
+        f"{'read_unit_frame (one unit, wide frame)':<42}{'':>12}{frame_readings / frame_s:>14,.0f}"
+    )
+    print(f"{'baseline: sqlite3 fetchall + pivot':<42}{'':>12}{frame_readings / pivot_s:>14,.0f}")
+    print(
         f"bytes on disk per reading: rimewatch {db_bytes / readings:.1f}, "
         f"baseline table {raw_bytes / readings:.1f}"
     )
@@ -150,6 +172,8 @@ def main(rows: int) -> None:
         f"reimport_readings_per_s={readings / replay_s:.0f} "
         f"baseline_executemany_readings_per_s={readings / raw_s:.0f} "
         f"import_vs_baseline={raw_s / import_s:.2f} bytes_per_reading={db_bytes / readings:.1f} "
+        f"read_unit_frame_readings_per_s={frame_readings / frame_s:.0f} "
+        f"baseline_fetch_pivot_readings_per_s={frame_readings / pivot_s:.0f} "
         f"readings={readings}"
     )
 
