@@ -47,13 +47,8 @@ def _temperature_text(kelvin: float, unit_system: str) -> str:
     return f"{kelvin - 273.15:.0f} °C"
 
 
-def _per_row(values, rows: int, name: str) -> np.ndarray:
-    array = (
-        np.broadcast_to(np.asarray(values, dtype=float), (rows,)) if values is not None else None
-    )
-    if array is None:
-        raise ValueError(f"{name} is required")
-    return array
+def _per_row(values, rows: int) -> np.ndarray:
+    return np.broadcast_to(np.asarray(values, dtype=float), (rows,))
 
 
 def _saturation_lines(fluid, p_low: float, p_high: float, points: int = 160):
@@ -61,7 +56,7 @@ def _saturation_lines(fluid, p_low: float, p_high: float, points: int = 160):
     p_crit = fluid.critical_pressure
     top = min(p_high, 0.9999 * p_crit)
     # denser near the critical point, where the lines bend sharply
-    fractions = 1.0 - np.geomspace(1.0, 1e-3, points) + 1e-3
+    fractions = 1.0 - np.geomspace(1.0, 1e-4, points)
     pressures = np.exp(np.log(p_low) + (np.log(top) - np.log(p_low)) * fractions / fractions[-1])
     h_bubble = np.asarray(props.saturated_enthalpy(fluid, pressures, "bubble"), dtype=float)
     h_dew = np.asarray(props.saturated_enthalpy(fluid, pressures, "dew"), dtype=float)
@@ -158,9 +153,9 @@ def ph_diagram(
     rows = len(states)
     if rows == 0:
         raise ValueError("no cycles to draw")
-    p_suc = _per_row(suction_pressure, rows, "suction_pressure")
-    p_dis = _per_row(discharge_pressure, rows, "discharge_pressure")
-    p_liq = p_dis if liquid_pressure is None else _per_row(liquid_pressure, rows, "liquid_pressure")
+    p_suc = _per_row(suction_pressure, rows)
+    p_dis = _per_row(discharge_pressure, rows)
+    p_liq = p_dis if liquid_pressure is None else _per_row(liquid_pressure, rows)
 
     fig = Figure(figsize=(8.0, 5.6), layout="constrained")
     FigureCanvasAgg(fig)
