@@ -56,6 +56,10 @@ ROLE_RANGES_SI: dict[str, tuple[float, float]] = {
     "compressor_current": (0.0, 1.0e4),
     "compressor_status": (0.0, 1.0),
     "fan_status": (0.0, 1.0),
+    "return_air_humidity": (0.0, 1.05),  # fraction; sensors overshoot 100 %RH near saturation
+    "compressor_speed": (0.0, 1500.0),  # [Hz] (90 000 rpm), or a 0-1 fraction of full speed
+    "chilled_water_flow": (0.0, 1.0e4),  # [kg/s] or [m^3/s]
+    "condenser_water_flow": (0.0, 1.0e4),
 }
 # Any value beyond this magnitude is garbage whatever the role.
 MAX_ABS_VALUE = 1.0e12

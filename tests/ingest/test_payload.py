@@ -9,6 +9,7 @@ from datetime import UTC, datetime, timedelta, timezone
 import pytest
 
 from rimewatch.ingest.payload import (
+    ROLE_RANGES_SI,
     DecodeLimits,
     PayloadDecoder,
     PointTarget,
@@ -310,3 +311,11 @@ def test_decoder_for_points_names_a_bad_unit():
     bad = PointInfo(1, "acme", 1, "rtu-1", 1, "suction_pressure", "furlongs", "a/p", None, 0.0)
     with pytest.raises(ValueError, match="point rtu-1/suction_pressure"):
         decoder_for_points([bad])
+
+
+def test_every_role_has_a_plausible_range():
+    from rimewatch.site import ROLES
+
+    assert set(ROLES) <= set(ROLE_RANGES_SI)
+    for low, high in ROLE_RANGES_SI.values():
+        assert low < high
