@@ -15,121 +15,45 @@ References
 .. [1] Bell, I. H., Wronski, J., Quoilin, S., Lemort, V. (2014). "Pure and Pseudo-pure Fluid
    Thermophysical Property Evaluation and the Open-Source Thermophysical Property Library CoolProp."
    Ind. Eng. Chem. Res. 53(6): 2498-2508. :doi:`10.1021/ie4033999`
-.. [2] ANSI/ASHRAE Standard 34-2022, "Designation and Safety Classification of Refrigerants".
 """
 
 from __future__ import annotations
 
 import threading
-from dataclasses import dataclass
+from functools import cache
 from typing import Literal
 
 import CoolProp
 import CoolProp.CoolProp as CP
 import numpy as np
 
+from rimewatch.physics.catalogue import (
+    SUPPORTED,
+    Refrigerant,
+    UnsupportedRefrigerantError,
+    get_refrigerant,
+)
+
+__all__ = [
+    "SUPPORTED",
+    "Refrigerant",
+    "UnsupportedRefrigerantError",
+    "critical_point",
+    "density",
+    "enthalpy",
+    "entropy",
+    "get_refrigerant",
+    "isentropic_state",
+    "latent_heat",
+    "quality",
+    "saturated_enthalpy",
+    "saturated_entropy",
+    "saturation_pressure",
+    "saturation_temperature",
+    "triple_point",
+]
+
 Phase = Literal["dew", "bubble"]
-
-
-@dataclass(frozen=True)
-class Refrigerant:
-    """A supported refrigerant.
-
-    Attributes
-    ----------
-    designation : ASHRAE 34 designation, e.g. ``"R410A"``.
-    coolprop_name : CoolProp's fluid name.
-    safety_class : ASHRAE 34 safety group (toxicity A/B, flammability 1, 2L, 2, 3) [2].
-    blend : ``None`` for a single compound, else ``"azeotropic"``, ``"near-azeotropic"`` or
-        ``"zeotropic"``; zeotropic blends have a temperature glide, so their dew and bubble points
-        at one pressure differ.
-    """
-
-    designation: str
-    coolprop_name: str
-    safety_class: str
-    blend: str | None = None
-
-    @property
-    def flammable(self) -> bool:
-        """True for ASHRAE 34 flammability classes 2L, 2 and 3."""
-        return self.safety_class[1:] != "1"
-
-    @property
-    def toxic(self) -> bool:
-        """True for ASHRAE 34 toxicity class B (higher toxicity)."""
-        return self.safety_class.startswith("B")
-
-    @property
-    def critical_temperature(self) -> float:
-        """Critical temperature [K]."""
-        return critical_point(self)[0]
-
-    @property
-    def critical_pressure(self) -> float:
-        """Critical pressure [Pa]."""
-        return critical_point(self)[1]
-
-
-# Safety classes from ASHRAE 34 [2], Tables 4-1 and 4-2.
-SUPPORTED: dict[str, Refrigerant] = {
-    r.designation: r
-    for r in (
-        Refrigerant("R22", "R22", "A1"),
-        Refrigerant("R32", "R32", "A2L"),
-        Refrigerant("R134a", "R134a", "A1"),
-        Refrigerant("R290", "n-Propane", "A3"),
-        Refrigerant("R404A", "R404A", "A1", "near-azeotropic"),
-        Refrigerant("R407C", "R407C", "A1", "zeotropic"),
-        Refrigerant("R410A", "R410A", "A1", "near-azeotropic"),
-        Refrigerant("R507A", "R507A", "A1", "azeotropic"),
-        Refrigerant("R600a", "IsoButane", "A3"),
-        Refrigerant("R717", "Ammonia", "B2L"),
-        Refrigerant("R744", "CarbonDioxide", "A1"),
-        Refrigerant("R1234yf", "R1234yf", "A2L"),
-        Refrigerant("R1234ze(E)", "R1234ze(E)", "A2L"),
-    )
-}
-
-_ALIASES = {
-    "R1234ZE": "R1234ze(E)",
-    "PROPANE": "R290",
-    "ISOBUTANE": "R600a",
-    "AMMONIA": "R717",
-    "CO2": "R744",
-    "CARBONDIOXIDE": "R744",
-    "NPROPANE": "R290",
-}
-
-
-class UnsupportedRefrigerantError(ValueError):
-    """Raised for a refrigerant name rimewatch cannot compute."""
-
-
-def _normalise(name: str) -> str:
-    return name.strip().upper().replace("-", "").replace(" ", "").replace("_", "")
-
-
-_BY_KEY = {_normalise(d): r for d, r in SUPPORTED.items()}
-_BY_KEY.update({_normalise(alias): SUPPORTED[d] for alias, d in _ALIASES.items()})
-
-
-def get_refrigerant(name: str | Refrigerant) -> Refrigerant:
-    """Look up a supported refrigerant by designation (``"R410A"``, ``"R-410A"``, ``"r410a"``).
-
-    Raises
-    ------
-    UnsupportedRefrigerantError
-        When the name is not supported; the message lists the supported designations.
-    """
-    if isinstance(name, Refrigerant):
-        return name
-    found = _BY_KEY.get(_normalise(str(name)))
-    if found is None:
-        raise UnsupportedRefrigerantError(
-            f"refrigerant {name!r} is not supported; supported: {', '.join(SUPPORTED)}"
-        )
-    return found
 
 
 CP.set_reference_state("Ammonia", "IIR")
@@ -196,6 +120,28 @@ def critical_point(refrigerant: str | Refrigerant) -> tuple[float, float]:
     return state.T_critical(), state.p_critical()
 
 
+@cache
+def _triple_point(fluid: Refrigerant) -> tuple[float, float]:
+    state = CP.AbstractState("HEOS", fluid.coolprop_name)
+    return state.Ttriple(), state.trivial_keyed_output(CP.iP_triple)
+
+
+def triple_point(refrigerant) -> tuple[float, float]:
+    """Triple-point temperature [K] and pressure [Pa]: below them no liquid exists.
+
+    For the blends (R404A, R407C, R410A, R507A) CoolProp gives the lower limit of the
+    pseudo-pure equation of state instead.
+    """
+    return _triple_point(get_refrigerant(refrigerant))
+
+
+def _no_liquid_below(values: np.ndarray, inputs, limit: float) -> np.ndarray:
+    """NaN where the input lies below the triple point: no saturation exists there (CoolProp
+    would extrapolate a metastable liquid-vapour line, e.g. R744 at 1 atm: -88 degC)."""
+    with np.errstate(invalid="ignore"):
+        return np.where(np.asarray(inputs, dtype=float) < limit * (1 - 1e-9), np.nan, values)
+
+
 def saturation_temperature(refrigerant, pressure, phase: Phase = "dew"):
     """Saturation temperature [K] at ``pressure`` [Pa].
 
@@ -205,25 +151,25 @@ def saturation_temperature(refrigerant, pressure, phase: Phase = "dew"):
     critical pressure, where no saturation exists.
     """
     out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("T",))[0]
-    return _scalar_or_array(out)
+    return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
 def saturation_pressure(refrigerant, temperature, phase: Phase = "dew"):
     """Saturation pressure [Pa] at ``temperature`` [K] (dew or bubble point, see above)."""
     out = _evaluate(refrigerant, CP.QT_INPUTS, _quality(phase), temperature, ("p",))[0]
-    return _scalar_or_array(out)
+    return _scalar_or_array(_no_liquid_below(out, temperature, triple_point(refrigerant)[0]))
 
 
 def saturated_enthalpy(refrigerant, pressure, phase: Phase = "dew"):
     """Enthalpy [J/kg] of saturated vapour (``"dew"``) or liquid (``"bubble"``) at ``pressure``."""
     out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("hmass",))[0]
-    return _scalar_or_array(out)
+    return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
 def saturated_entropy(refrigerant, pressure, phase: Phase = "dew"):
     """Entropy [J/(kg K)] of saturated vapour or liquid at ``pressure`` [Pa]."""
     out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("smass",))[0]
-    return _scalar_or_array(out)
+    return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
 def latent_heat(refrigerant, temperature):
@@ -234,7 +180,8 @@ def latent_heat(refrigerant, temperature):
     """
     vapour = _evaluate(refrigerant, CP.QT_INPUTS, 1.0, temperature, ("hmass",))[0]
     liquid = _evaluate(refrigerant, CP.QT_INPUTS, 0.0, temperature, ("hmass",))[0]
-    return _scalar_or_array(vapour - liquid)
+    latent = _no_liquid_below(vapour - liquid, temperature, triple_point(refrigerant)[0])
+    return _scalar_or_array(latent)
 
 
 def _single_phase(refrigerant, pressure, temperature, output: str):

@@ -27,7 +27,7 @@ from pydantic import (
 )
 
 from rimewatch.ingest.units import UnitError, atmospheric_pressure, canonical_unit, unit_kind
-from rimewatch.physics.refrigerant import get_refrigerant
+from rimewatch.physics.catalogue import get_refrigerant
 
 UnitKind = Literal["rooftop_unit", "split_system", "cold_room_condensing_unit", "chiller_circuit"]
 ExpansionDevice = Literal["txv", "eev", "fixed_orifice"]

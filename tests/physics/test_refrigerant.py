@@ -522,15 +522,6 @@ def test_quality_reads_the_lever_rule():
     assert x[3] > 1.0
 
 
-# --- known gap (see /work/notes/requests.md)
-
-
-@pytest.mark.xfail(
-    strict=True,
-    reason="requests.md (reftests): saturation below the triple point should be NaN; CoolProp "
-    "extrapolates a metastable liquid-vapour line (R744 at 1 atm: -88 degC; CO2 sublimes at "
-    "-78.5 degC, NIST, from memory)",
-)
 def test_saturation_below_triple_point_is_nan():
     # R744 triple point: 216.592 K, 517.95 kPa (NIST, from memory). Below it no liquid exists; a
     # CO2 low side reading 1 atm (e.g. a failed transducer) must not yield a saturation temperature.
