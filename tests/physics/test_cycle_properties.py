@@ -260,13 +260,16 @@ def envelope_samples(name, count, seed):
 
     Evaporating dew point -45..+20 degC, condensing dew point 10..65 degC (R744: below critical)
     and at least 5 K above evaporating, superheat 0.5..60 K, subcooling 0.5..20 K, a liquid-line
-    pressure 0-5 % below discharge, discharge temperature between T2s and 130 degC.
+    pressure 0-5 % below discharge, discharge temperature between T2s and 130 degC. The first
+    four samples sit on the envelope's corners (lowest and highest evaporating and condensing).
     """
     rng = np.random.default_rng(seed)
     ceiling = condensing_ceiling(name)
     t_evap = rng.uniform(-45.0, 20.0, count) + ZERO_CELSIUS
+    t_evap[:4] = np.array([-45.0, -45.0, 20.0, 20.0]) + ZERO_CELSIUS
     t_evap = np.minimum(t_evap, ceiling - 5.0)
     t_cond = rng.uniform(np.maximum(10.0 + ZERO_CELSIUS, t_evap + 5.0), ceiling)
+    t_cond[:4] = [max(10.0 + ZERO_CELSIUS, t_evap[0] + 5.0), ceiling, t_evap[2] + 5.0, ceiling]
     p_suc = rf.saturation_pressure(name, t_evap, "dew")
     p_dis = rf.saturation_pressure(name, t_cond, "dew")
     p_liq = p_dis * rng.uniform(0.95, 1.0, count)
