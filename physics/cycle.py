@@ -63,6 +63,7 @@ DISCHARGE_BELOW_SATURATION = 1 << 9
 DISCHARGE_BELOW_ISENTROPIC = 1 << 10
 TRANSCRITICAL = 1 << 11
 SUCTION_SUPERCRITICAL = 1 << 12
+NOT_PHYSICAL = 1 << 13
 
 FLAG_REASONS: dict[int, str] = {
     MISSING_SUCTION_PRESSURE: "suction pressure missing",
@@ -87,6 +88,10 @@ FLAG_REASONS: dict[int, str] = {
         "condensing temperature and subcooling do not apply"
     ),
     SUCTION_SUPERCRITICAL: "suction pressure above the critical pressure",
+    NOT_PHYSICAL: (
+        "absolute pressure or temperature at or below zero: not a physical reading "
+        "(gauge logged as absolute, or a failed sensor)"
+    ),
 }
 
 
@@ -218,7 +223,10 @@ def cycle_states(
         if given:
             flags[~np.isfinite(values)] |= bit
     for values in (p_suc, p_dis, t_suc, t_liq, t_dis, p_liq):
-        values[~np.isfinite(values) | (values <= 0)] = np.nan
+        with np.errstate(invalid="ignore"):
+            not_physical = values <= 0
+        flags[not_physical] |= NOT_PHYSICAL
+        values[~np.isfinite(values) | not_physical] = np.nan
 
     p_crit = fluid.critical_pressure
     transcritical = p_dis >= p_crit
@@ -252,7 +260,10 @@ def cycle_states(
     s1 = np.where(vapour_suction, suction_state["s"], np.nan)
     h2 = np.where(discharge_superheat < 0, np.nan, discharge.single_phase(t_dis, "h")["h"])
     h2s = discharge.isentropic_enthalpy(s1)
-    h3 = np.where(subcooling < 0, np.nan, liquid_line.single_phase(t_liq, "h")["h"])
+    h3 = liquid_line.single_phase(t_liq, "h")["h"]
+    h3[subcooling < 0] = np.nan
+    saturated_liquid = subcooling == 0  # on the line itself: liquid, not the vapour branch
+    h3[saturated_liquid] = liquid_line.saturation("h_bubble")[saturated_liquid]
     h4 = h3.copy()
     h_bubble = suction.saturation("h_bubble")
     h_dew = suction.saturation("h_dew")

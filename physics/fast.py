@@ -10,7 +10,8 @@ tensor-product cubic Lagrange polynomials over a uniform grid.
 
 Table coordinates follow the saturation lines so that no table straddles the two-phase dome:
 
-* saturation properties against ``u = ln p``;
+* saturation properties against ``u = ln p``, on the same pressure grid as the 2-D tables (so
+  each pressure array is located on the grid once for all of them);
 * superheated vapour against ``u`` and the square root of the superheat ``T - T_dew(p)``;
 * subcooled liquid against ``u`` and the square root of the subcooling ``T_bubble(p) - T``;
   (the square root packs nodes near the saturation line, where near the critical point the
@@ -44,11 +45,10 @@ import numpy as np
 from rimewatch.physics import refrigerant as exact
 from rimewatch.physics.refrigerant import COOLPROP_VERSION, Phase, Refrigerant, get_refrigerant
 
-TABLE_LAYOUT = 3  # bump when the grids below change, so cached tables are rebuilt
+TABLE_LAYOUT = 4  # bump when the grids below change, so cached tables are rebuilt
 
 LOWEST_TEMPERATURE = 213.15  # K (-60 degC), or just above the triple point if that is higher
 HIGHEST_SATURATION = 353.15  # K (80 degC), or 3 K below the critical temperature if lower
-SATURATION_NODES = 1200
 PRESSURE_NODES = 180
 SUPERHEAT_SPAN = 200.0  # K above the dew point covered by the vapour table
 SUPERHEAT_NODES = 161
@@ -159,9 +159,8 @@ class PropertyTables:
     """Tabulated properties of one refrigerant (see the module docstring for the coordinates)."""
 
     refrigerant: Refrigerant
-    saturation_axis: _Axis  # ln p
-    saturation: np.ndarray  # (nodes, 6): T_dew, T_bubble, h_dew, h_bubble, s_dew, s_bubble
-    pressure_axis: _Axis  # ln p, coarser, shared by the 2-D tables
+    pressure_axis: _Axis  # ln p, shared by every table
+    saturation: np.ndarray  # (p, 6): T_dew, T_bubble, h_dew, h_bubble, s_dew, s_bubble
     superheat_axis: _Axis
     vapour: np.ndarray  # (p, superheat, 3): h, s, ln rho
     subcooling_axis: _Axis
@@ -188,7 +187,6 @@ class PropertyTables:
 
     def _axes(self) -> dict[str, _Axis]:
         return {
-            "saturation": self.saturation_axis,
             "pressure": self.pressure_axis,
             "superheat": self.superheat_axis,
             "subcooling": self.subcooling_axis,
@@ -203,9 +201,8 @@ class PropertyTables:
 
         return cls(
             refrigerant,
-            axis("saturation"),
-            arrays["saturation"],
             axis("pressure"),
+            arrays["saturation"],
             axis("superheat"),
             arrays["vapour"],
             axis("subcooling"),
@@ -231,27 +228,24 @@ def build_tables(name: str | Refrigerant) -> PropertyTables:
     p_low, p_high = _pressure_range(fluid)
     u_low, u_high = np.log(p_low), np.log(p_high)
 
-    sat_axis = _Axis(u_low, (u_high - u_low) / (SATURATION_NODES - 1), SATURATION_NODES)
-    p_sat = np.exp(sat_axis.values())
-    saturation = np.column_stack(
-        [
-            exact.saturation_temperature(fluid, p_sat, "dew"),
-            exact.saturation_temperature(fluid, p_sat, "bubble"),
-            exact.saturated_enthalpy(fluid, p_sat, "dew"),
-            exact.saturated_enthalpy(fluid, p_sat, "bubble"),
-            exact.saturated_entropy(fluid, p_sat, "dew"),
-            exact.saturated_entropy(fluid, p_sat, "bubble"),
-        ]
-    )
-
-    # The 2-D tables extend one cell past the saturation range on each side, so that cubic
-    # stencils near the edges of the operating envelope stay centred.
+    # The grid extends one cell past the tabulated range on each side, so that cubic stencils
+    # near the edges of the operating envelope stay centred.
     p_axis_step = (u_high - u_low) / (PRESSURE_NODES - 3)
     p_axis = _Axis(u_low - p_axis_step, p_axis_step, PRESSURE_NODES)
     p_rows = np.exp(p_axis.values())
     t_dew = exact.saturation_temperature(fluid, p_rows, "dew")
     t_bubble = exact.saturation_temperature(fluid, p_rows, "bubble")
     s_dew = exact.saturated_entropy(fluid, p_rows, "dew")
+    saturation = np.column_stack(
+        [
+            t_dew,
+            t_bubble,
+            exact.saturated_enthalpy(fluid, p_rows, "dew"),
+            exact.saturated_enthalpy(fluid, p_rows, "bubble"),
+            s_dew,
+            exact.saturated_entropy(fluid, p_rows, "bubble"),
+        ]
+    )
 
     superheat_axis = _Axis(0.0, np.sqrt(SUPERHEAT_SPAN) / (SUPERHEAT_NODES - 1), SUPERHEAT_NODES)
     p_grid, x_grid = np.meshgrid(p_rows, superheat_axis.values() ** 2, indexing="ij")
@@ -294,9 +288,8 @@ def build_tables(name: str | Refrigerant) -> PropertyTables:
 
     return PropertyTables(
         fluid,
-        sat_axis,
-        saturation,
         p_axis,
+        saturation,
         superheat_axis,
         np.moveaxis(vapour, 0, -1),
         subcooling_axis,
@@ -381,18 +374,18 @@ class PressureLookup:
         self.p = np.asarray(pressure, dtype=float).ravel()
         with np.errstate(invalid="ignore", divide="ignore"):
             self.u = np.log(np.where(self.p > 0, self.p, np.nan))
-        self.tabulated = self.tables.saturation_axis.contains(self.u)
-        self._stencil = _Stencil(self.tables.saturation_axis, self.u)
+        axis = self.tables.pressure_axis
+        self.tabulated = (self.u >= axis.start + axis.step) & (self.u <= axis.stop - axis.step)
+        self._rows = axis.locate(self.u)
+        self._stencil = _Stencil(self._rows)
         self._saturation: dict[str, np.ndarray] = {}
-        self._rows = None
 
     def _row_location(self, mask: np.ndarray):
-        """Location on the 2-D tables' pressure axis; computed once when all samples take part."""
-        if not mask.all():
-            return self.tables.pressure_axis.locate(self.u[mask])
-        if self._rows is None:
-            self._rows = self.tables.pressure_axis.locate(self.u)
-        return self._rows
+        """The pressures' location on the grid, for the samples in ``mask``."""
+        if mask.all():
+            return self._rows
+        index, weights = self._rows
+        return index[mask], tuple(w[mask] for w in weights)
 
     def saturation(self, name: str) -> np.ndarray:
         """A saturation property by name: ``T_dew``, ``T_bubble``, ``h_dew``, ``h_bubble``,

@@ -464,17 +464,11 @@ def test_unsupported_refrigerant_is_refused():
         cycle_states("R12", 3.0e5, 1.2e6)
 
 
-# --- known gaps (see /work/notes/requests.md, "reftests")
+# --- edge cases: a saturated liquid line, non-physical pressures
 
 PURE_FLUIDS = [name for name, fluid in rf.SUPPORTED.items() if fluid.blend is None]
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="requests.md (reftests): a liquid line exactly at its bubble point is read as saturated "
-    "VAPOUR for pure fluids (h3 = h_dew, negative COP, no flag); sim/model.py writes exactly that "
-    "liquid_temp for a two-phase condenser outlet (low charge)",
-)
 @pytest.mark.parametrize("method", ["fast", "exact"])
 def test_saturated_liquid_line(method):
     # Zero subcooling: the liquid line holds saturated liquid, h3 = h_bubble(P) (definition of the
@@ -492,10 +486,6 @@ def test_saturated_liquid_line(method):
     assert not failures, failures
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="requests.md (reftests): absolute pressures <= 0 give NaN values with no flag",
-)
 @pytest.mark.parametrize("method", ["fast", "exact"])
 def test_non_positive_pressure_is_flagged(method):
     # An absolute pressure cannot be zero or negative (e.g. a gauge reading taken as absolute, a
