@@ -32,7 +32,7 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from functools import lru_cache
 
 import numpy as np
@@ -51,6 +51,8 @@ WATTS_PER_TON = 12000.0 * WATTS_PER_BTU_PER_HOUR  # ton of refrigeration = 12 00
 DEFAULT_SHELL_LOSS_FRACTION = 0.05
 # Air leaving a wet cooling coil is close to, but not at, saturation (common practice 90-95 %RH).
 DEFAULT_COIL_LEAVING_RH = 0.95
+# Samples per pass of compute(): a pass's temporaries then stay in the CPU cache.
+BLOCK_SAMPLES = 32768
 
 
 def _out(values):
@@ -92,11 +94,14 @@ def map_mass_flow(
     extrapolate : bool
         False: NaN outside the map envelope (see :meth:`CompressorMap.in_envelope`).
     """
-    fluid = compressor_map.refrigerant
     m_map = compressor_map.mass_flow(t_evap, t_cond, speed, extrapolate)
     rated_temp = compressor_map.rated_suction_temperature(t_evap)
-    rho = fast.density(fluid, suction_pressure, suction_temp)
-    rho_rated = fast.density(fluid, suction_pressure, rated_temp)
+    p, actual, rated = np.broadcast_arrays(
+        *(np.asarray(x, float) for x in (suction_pressure, suction_temp, rated_temp))
+    )
+    at_suction = fast.PressureLookup(compressor_map.refrigerant, p)  # located once for both
+    rho = at_suction.single_phase(actual.reshape(-1), "rho")["rho"].reshape(p.shape)
+    rho_rated = at_suction.single_phase(rated.reshape(-1), "rho")["rho"].reshape(p.shape)
     return _out(
         density_corrected_mass_flow(m_map, rho, rho_rated, compressor_map.density_correction_factor)
     )
@@ -194,8 +199,8 @@ class MoistAir:
     Enthalpy is per kilogram of dry air, with the reference state of the ASHRAE psychrometric
     tables (dry air and liquid water at 0 degC). ``MoistAir.tabulated(p)`` gives the same
     properties from bilinear tables of ``HAPropsSI`` values (0.5 K in temperature, 5 %RH in
-    humidity, 0.0025 kg/kg in humidity ratio over -40 to +60 degC), about 1000 times faster, for
-    long series; samples outside the tables are computed directly.
+    humidity, 0.0025 kg/kg in humidity ratio over -40 to +60 degC), several hundred times faster,
+    for long series; samples outside the tables are computed directly.
     """
 
     def __init__(self, pressure=STANDARD_PRESSURE):
@@ -229,56 +234,207 @@ class MoistAir:
         """Specific volume [m^3 per kg dry air] at dry bulb [K] and humidity ratio [kg/kg]."""
         return _out(self._props("Vda", "T", temperature, "W", humidity_ratio))
 
+    def _evaporator_states(self, return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh):
+        """h(T_r, W_r), h(T_s, W_s), h(T_r, W_s) [J/kg dry air] and v_da(T_r, W_r) [m^3/kg]."""
+        w_r = np.asarray(self.humidity_ratio(return_temp, return_rh), float)
+        w_s = np.asarray(
+            supply_humidity_ratio(self, w_r, supply_temp, supply_rh, coil_leaving_rh), float
+        )
+        h_r = self.enthalpy(return_temp, w_r)
+        h_s = self.enthalpy(supply_temp, w_s)
+        h_r_dry = self.enthalpy(return_temp, w_s)  # entering temperature, leaving humidity
+        return h_r, h_s, h_r_dry, self.dry_air_volume(return_temp, w_r)
+
+    def _condenser_states(self, entering_temp, leaving_temp, entering_rh):
+        """h(T_in, W), h(T_out, W) [J/kg dry air] and v_da(T_in, W) [m^3/kg], W = W(T_in, RH)."""
+        w = self.humidity_ratio(entering_temp, entering_rh)
+        h_in, h_out = self.enthalpy(entering_temp, w), self.enthalpy(leaving_temp, w)
+        return h_in, h_out, self.dry_air_volume(entering_temp, w)
+
+
+@dataclass(frozen=True)
+class _Location:
+    """Samples located on a uniform grid: cell index, fraction of the cell, inside the grid."""
+
+    samples: np.ndarray
+    cell: np.ndarray | None
+    fraction: np.ndarray | None
+    inside: np.ndarray
+
+
+@dataclass(frozen=True)
+class _Grid:
+    """A uniform axis ``start + step * k``, k = 0 .. nodes - 1."""
+
+    start: float
+    step: float
+    nodes: int
+
+    def values(self) -> np.ndarray:
+        return self.start + self.step * np.arange(self.nodes)
+
+    def locate(self, x: np.ndarray) -> _Location:
+        q = x - self.start
+        q *= 1.0 / self.step
+        inside = (q >= 0.0) & (q <= self.nodes - 1)
+        cell = np.fmax(q, 0.0)  # fmax/fmin map NaN to the bound; such samples are outside
+        np.fmin(cell, self.nodes - 2.0, out=cell)
+        cell = cell.astype(np.intp)
+        q -= cell
+        return _Location(x, cell, q, inside)
+
+
+def _bilinear_cells(table: np.ndarray) -> np.ndarray:
+    """Per-cell coefficients (c0, cu, cv, cuv), shape (4, cells), of a 2-D table.
+
+    Inside a cell, with fractions u and v along the two axes, the bilinear interpolant is
+    ``c0 + cu u + (cv + cuv u) v``; one column holds all a sample needs, fetched by one ``take``.
+    """
+    a, b, c, d = table[:-1, :-1], table[1:, :-1], table[:-1, 1:], table[1:, 1:]
+    return np.stack([a, b - a, c - a, d - b - c + a]).reshape(4, -1)
+
+
+def _bilinear(rows: np.ndarray, first: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Evaluate the cell coefficients ``rows[first:first + 4]`` at fractions u, v."""
+    out = rows[first + 3] * u
+    out += rows[first + 2]
+    out *= v
+    out += rows[first]
+    out += rows[first + 1] * u
+    return out
+
+
+def _flat(value, shape) -> np.ndarray:
+    return np.broadcast_to(np.asarray(value, float), shape).reshape(-1)
+
+
+def _shaped(values: np.ndarray, shape):
+    return float(values[0]) if shape == () else values.reshape(shape)
+
 
 class _TabulatedMoistAir(MoistAir):
-    T_AXIS = np.arange(-40.0, 60.001, 0.5) + 273.15
-    RH_AXIS = np.linspace(0.0, 1.0, 21)
-    W_AXIS = np.linspace(0.0, 0.05, 21)
+    """:class:`MoistAir` from bilinear tables of ``HAPropsSI`` values.
+
+    Each temperature is located on the grid once and shared by every property looked up at it;
+    enthalpy and specific volume sit side by side in one table of per-cell coefficients.
+    """
+
+    TEMPERATURE = _Grid(233.15, 0.5, 201)  # -40 .. +60 degC [K]
+    RELATIVE_HUMIDITY = _Grid(0.0, 0.05, 21)  # [-]
+    HUMIDITY_RATIO = _Grid(0.0, 0.0025, 21)  # [kg/kg]
 
     def __init__(self, pressure):
         super().__init__(pressure)
-        exact = MoistAir(pressure)
-        t_rh = np.meshgrid(self.T_AXIS, self.RH_AXIS, indexing="ij")
-        t_w = np.meshgrid(self.T_AXIS, self.W_AXIS, indexing="ij")
-        self._w = exact.humidity_ratio(*t_rh)
-        self._h = exact.enthalpy(*t_w)
-        self._v = exact.dry_air_volume(*t_w)
-        self._exact = exact
+        self._exact = MoistAir(pressure)
+        t = self.TEMPERATURE.values()
+        t_rh = np.meshgrid(t, self.RELATIVE_HUMIDITY.values(), indexing="ij")
+        t_w = np.meshgrid(t, self.HUMIDITY_RATIO.values(), indexing="ij")
+        self._w_table = self._exact.humidity_ratio(*t_rh)
+        self._w_cells = _bilinear_cells(self._w_table)
+        self._h_cells = _bilinear_cells(self._exact.enthalpy(*t_w))
+        volume_cells = _bilinear_cells(self._exact.dry_air_volume(*t_w))
+        self._h_v_cells = np.vstack([self._h_cells, volume_cells])
+        self._w_lines: dict[float, np.ndarray] = {}
 
-    def _lookup(self, table, y_axis, x, y, fallback):
-        x, y = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float))
-        nx, ny = table.shape
-        fx = (x - self.T_AXIS[0]) * (1.0 / (self.T_AXIS[1] - self.T_AXIS[0]))
-        fy = (y - y_axis[0]) * (1.0 / (y_axis[1] - y_axis[0]))
-        inside = (fx >= 0) & (fx <= nx - 1) & (fy >= 0) & (fy <= ny - 1)
-        i = np.minimum(np.where(inside, fx, 0).astype(np.intp), nx - 2)
-        j = np.minimum(np.where(inside, fy, 0).astype(np.intp), ny - 2)
-        u, v = fx - i, fy - j
-        flat = table.ravel()
-        k = i * ny + j
-        low = flat[k] + (flat[k + ny] - flat[k]) * u
-        high = flat[k + 1] + (flat[k + ny + 1] - flat[k + 1]) * u
-        out = np.asarray(low + (high - low) * v)
-        outside = ~inside
-        if outside.any():
-            out[outside] = np.nan
-            retry = outside & np.isfinite(x) & np.isfinite(y)
+    # ---- lookups at located temperatures ----
+
+    def _checked(self, values, at_t: _Location, at_y: _Location, exact) -> np.ndarray:
+        """NaN outside the tables, recomputed with ``HAPropsSI`` where the inputs are finite."""
+        inside = at_t.inside & at_y.inside
+        if not inside.all():
+            outside = ~inside
+            values[outside] = np.nan
+            retry = outside & np.isfinite(at_t.samples) & np.isfinite(at_y.samples)
             if retry.any():
-                out[retry] = fallback(x[retry], y[retry])
-        return _out(out)
+                values[retry] = exact(at_t.samples[retry], at_y.samples[retry])
+        return values
+
+    def _w_line(self, relative_humidity: float) -> np.ndarray:
+        """W(T) at one relative humidity as per-cell (value, slope), shape (2, cells)."""
+        line = self._w_lines.get(relative_humidity)
+        if line is None:
+            at = self.RELATIVE_HUMIDITY.locate(np.array([relative_humidity]))
+            left = self._w_table[:, at.cell[0]]
+            w = left + (self._w_table[:, at.cell[0] + 1] - left) * at.fraction[0]
+            line = self._w_lines[relative_humidity] = np.vstack([w[:-1], np.diff(w)])
+        return line
+
+    def _humidity_ratio_at(self, at_t: _Location, relative_humidity) -> np.ndarray:
+        rh = np.asarray(relative_humidity, float)
+        if rh.ndim == 0 and 0.0 <= rh <= 1.0:  # one value: interpolate along a line of the table
+            rows = self._w_line(float(rh)).take(at_t.cell, axis=1)
+            values = rows[1] * at_t.fraction
+            values += rows[0]
+            at_rh = _Location(np.broadcast_to(rh, at_t.samples.shape), None, None, np.True_)
+        else:
+            at_rh = self.RELATIVE_HUMIDITY.locate(np.broadcast_to(rh, at_t.samples.shape))
+            cells = at_t.cell * (self.RELATIVE_HUMIDITY.nodes - 1) + at_rh.cell
+            values = _bilinear(self._w_cells.take(cells, axis=1), 0, at_t.fraction, at_rh.fraction)
+        return self._checked(values, at_t, at_rh, self._exact.humidity_ratio)
+
+    def _rows(self, cells: np.ndarray, at_t: _Location, at_w: _Location) -> np.ndarray:
+        return cells.take(at_t.cell * (self.HUMIDITY_RATIO.nodes - 1) + at_w.cell, axis=1)
+
+    def _enthalpy_at(self, at_t: _Location, at_w: _Location) -> np.ndarray:
+        rows = self._rows(self._h_cells, at_t, at_w)
+        values = _bilinear(rows, 0, at_t.fraction, at_w.fraction)
+        return self._checked(values, at_t, at_w, self._exact.enthalpy)
+
+    def _enthalpy_and_volume_at(self, at_t: _Location, at_w: _Location):
+        rows = self._rows(self._h_v_cells, at_t, at_w)
+        h = _bilinear(rows, 0, at_t.fraction, at_w.fraction)
+        v = _bilinear(rows, 4, at_t.fraction, at_w.fraction)
+        return (
+            self._checked(h, at_t, at_w, self._exact.enthalpy),
+            self._checked(v, at_t, at_w, self._exact.dry_air_volume),
+        )
+
+    # ---- the MoistAir interface ----
+
+    def _located(self, temperature, other):
+        shape = np.broadcast_shapes(np.shape(temperature), np.shape(other))
+        return shape, self.TEMPERATURE.locate(_flat(temperature, shape)), _flat(other, shape)
 
     def humidity_ratio(self, temperature, relative_humidity):
-        return self._lookup(
-            self._w, self.RH_AXIS, temperature, relative_humidity, self._exact.humidity_ratio
-        )
+        shape, at_t, rh = self._located(temperature, relative_humidity)
+        return _shaped(self._humidity_ratio_at(at_t, rh), shape)
 
     def enthalpy(self, temperature, humidity_ratio):
-        return self._lookup(self._h, self.W_AXIS, temperature, humidity_ratio, self._exact.enthalpy)
+        shape, at_t, w = self._located(temperature, humidity_ratio)
+        return _shaped(self._enthalpy_at(at_t, self.HUMIDITY_RATIO.locate(w)), shape)
 
     def dry_air_volume(self, temperature, humidity_ratio):
-        return self._lookup(
-            self._v, self.W_AXIS, temperature, humidity_ratio, self._exact.dry_air_volume
-        )
+        shape, at_t, w = self._located(temperature, humidity_ratio)
+        _, volume = self._enthalpy_and_volume_at(at_t, self.HUMIDITY_RATIO.locate(w))
+        return _shaped(volume, shape)
+
+    def _evaporator_states(self, return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh):
+        arrays = (return_temp, return_rh, supply_temp, supply_rh)
+        shape = np.broadcast_shapes(*(np.shape(a) for a in arrays if a is not None))
+        at_r = self.TEMPERATURE.locate(_flat(return_temp, shape))
+        at_s = self.TEMPERATURE.locate(_flat(supply_temp, shape))
+        w_r = self._humidity_ratio_at(at_r, _flat(return_rh, shape))
+        if supply_rh is None:  # see supply_humidity_ratio
+            w_s = np.fmin(w_r, self._humidity_ratio_at(at_s, coil_leaving_rh))
+        else:
+            w_s = self._humidity_ratio_at(at_s, _flat(supply_rh, shape))
+        at_w_r, at_w_s = self.HUMIDITY_RATIO.locate(w_r), self.HUMIDITY_RATIO.locate(w_s)
+        h_r, volume = self._enthalpy_and_volume_at(at_r, at_w_r)
+        h_s = self._enthalpy_at(at_s, at_w_s)
+        h_r_dry = self._enthalpy_at(at_r, at_w_s)
+        return tuple(_shaped(x, shape) for x in (h_r, h_s, h_r_dry, volume))
+
+    def _condenser_states(self, entering_temp, leaving_temp, entering_rh):
+        shape = np.broadcast_shapes(np.shape(entering_temp), np.shape(leaving_temp))
+        if np.ndim(entering_rh):
+            shape = np.broadcast_shapes(shape, np.shape(entering_rh))
+            entering_rh = _flat(entering_rh, shape)
+        at_in = self.TEMPERATURE.locate(_flat(entering_temp, shape))
+        at_out = self.TEMPERATURE.locate(_flat(leaving_temp, shape))
+        at_w = self.HUMIDITY_RATIO.locate(self._humidity_ratio_at(at_in, entering_rh))
+        h_in, volume = self._enthalpy_and_volume_at(at_in, at_w)
+        h_out = self._enthalpy_at(at_out, at_w)
+        return tuple(_shaped(x, shape) for x in (h_in, h_out, volume))
 
 
 @lru_cache(maxsize=8)
@@ -304,18 +460,6 @@ def supply_humidity_ratio(
         return air.humidity_ratio(supply_temp, supply_rh)
     wet = air.humidity_ratio(supply_temp, coil_leaving_rh)
     return _out(np.fmin(np.asarray(return_humidity_ratio, float), wet))
-
-
-def _evaporator_states(air, return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh):
-    """Entering/leaving humidity ratios, the enthalpies the balances need, entering v_da."""
-    w_r = np.asarray(air.humidity_ratio(return_temp, return_rh), float)
-    w_s = np.asarray(
-        supply_humidity_ratio(air, w_r, supply_temp, supply_rh, coil_leaving_rh), float
-    )
-    h_r = air.enthalpy(return_temp, w_r)
-    h_s = air.enthalpy(supply_temp, w_s)
-    h_r_dry = air.enthalpy(return_temp, w_s)  # entering temperature, leaving humidity
-    return h_r, h_s, h_r_dry, air.dry_air_volume(return_temp, w_r)
 
 
 def evaporator_air_capacity(
@@ -360,8 +504,8 @@ def evaporator_air_capacity(
         ``dry_air_mass_flow`` [kg/s].
     """
     air = air or MoistAir(pressure)
-    h_r, h_s, h_r_dry, volume = _evaporator_states(
-        air, return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh
+    h_r, h_s, h_r_dry, volume = air._evaporator_states(
+        return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh
     )
     dry_air = np.atleast_1d(np.asarray(airflow, float) / volume)
     total = dry_air * (h_r - h_s)
@@ -401,8 +545,8 @@ def virtual_evaporator_airflow(
     where the air is not cooled.
     """
     air = air or MoistAir(pressure)
-    h_r, h_s, _, volume = _evaporator_states(
-        air, return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh
+    h_r, h_s, _, volume = air._evaporator_states(
+        return_temp, return_rh, supply_temp, supply_rh, coil_leaving_rh
     )
     return _airflow(capacity, volume, h_r - h_s)
 
@@ -428,9 +572,8 @@ def virtual_condenser_airflow(
     result by well under 1 % (moist-air heat capacity varies little with humidity).
     """
     air = air or MoistAir(pressure)
-    w = air.humidity_ratio(entering_air_temp, entering_rh)
-    rise = air.enthalpy(leaving_air_temp, w) - air.enthalpy(entering_air_temp, w)
-    return _airflow(heat_rejection_rate, air.dry_air_volume(entering_air_temp, w), rise)
+    h_in, h_out, volume = air._condenser_states(entering_air_temp, leaving_air_temp, entering_rh)
+    return _airflow(heat_rejection_rate, volume, h_out - h_in)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -700,22 +843,53 @@ def compute(
         The columns of :data:`COLUMNS`, same index as ``states``; NaN where inputs are missing.
     """
     n = len(states)
+    names = ["t_evap", "t_cond", "h1", "h2", "h3", "h4"]
+    names += ["superheat"] if compressor_map is not None else []
+    names += ["subcooling", "superheat"] if charge_model is not None else []
+    inputs = {name: states[name].to_numpy(dtype=float) for name in names}
+    inputs["suction_pressure"] = _column(suction_pressure, n)
+    inputs["power"] = _column(compressor_power, n)
+    inputs["speed"] = _column(compressor_speed, n)
+    moist = None
+    if air is not None:
+        moist = MoistAir.tabulated(air.pressure) if n > 1000 else MoistAir(air.pressure)
+        for field in fields(AirReadings):
+            if field.name != "pressure":
+                inputs[field.name] = _column(getattr(air, field.name), n)
+    out = {column: np.full(n, np.nan) for column in COLUMNS if column != "flags"}
     flags = np.zeros(n, dtype=np.int64)
-    t_evap = states["t_evap"].to_numpy()
-    t_cond = states["t_cond"].to_numpy()
-    h1, h2 = states["h1"].to_numpy(), states["h2"].to_numpy()
-    h3, h4 = states["h3"].to_numpy(), states["h4"].to_numpy()
-    out: dict[str, np.ndarray] = {column: np.full(n, np.nan) for column in COLUMNS}
+    settings = (compressor_map, shell_loss_fraction, charge_model, extrapolate)
+    for start in range(0, n, BLOCK_SAMPLES):
+        block = slice(start, start + BLOCK_SAMPLES)
+        part = {name: None if values is None else values[block] for name, values in inputs.items()}
+        values, flags[block] = _refrigerant_side(part, *settings)
+        if moist is not None:
+            values.update(
+                _air_side(part, moist, values["cooling_capacity"], values["heat_rejection"])
+            )
+        for column, array in values.items():
+            out[column][block] = array
+    out["flags"] = _flag_text(flags)
+    return pd.DataFrame(out, index=states.index, copy=False)
 
-    speed = _column(compressor_speed, n)
+
+def _refrigerant_side(
+    part: dict, compressor_map, shell_loss_fraction, charge_model, extrapolate
+) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """Refrigerant-side virtual sensors and flag bits of one block of samples."""
+    t_evap, t_cond, speed = part["t_evap"], part["t_cond"], part["speed"]
+    h1, h2, h3, h4 = part["h1"], part["h2"], part["h3"], part["h4"]
+    flags = np.zeros(len(t_evap), dtype=np.int64)
+    missing = np.full(len(t_evap), np.nan)
+    out = {"mass_flow_map": missing, "compressor_power": missing, "mass_flow_balance": missing}
     if compressor_map is not None:
-        suction_temp = t_evap + states["superheat"].to_numpy()
         inside = compressor_map.in_envelope(t_evap, t_cond, speed)
         known = np.isfinite(t_evap) & np.isfinite(t_cond)
         flags[known & ~inside] |= OUTSIDE_MAP_ENVELOPE
         keep = inside | extrapolate
+        suction_temp = t_evap + part["superheat"]
         flow = map_mass_flow(
-            compressor_map, _column(suction_pressure, n), t_evap, t_cond, suction_temp, speed, True
+            compressor_map, part["suction_pressure"], t_evap, t_cond, suction_temp, speed, True
         )
         out["mass_flow_map"] = np.where(keep, flow, np.nan)
         for quantity, column in (
@@ -725,8 +899,8 @@ def compute(
             if quantity in compressor_map.coefficients:
                 values = compressor_map.evaluate(quantity, t_evap, t_cond, speed, extrapolate=True)
                 out[column] = np.where(keep, values, np.nan)
-    if compressor_power is not None:
-        power = _column(compressor_power, n)
+    power = part["power"]
+    if power is not None:
         flags[~(power > 0)] |= POWER_NOT_POSITIVE
         out["compressor_power"] = np.where(np.isfinite(power), power, out["compressor_power"])
         out["mass_flow_balance"] = energy_balance_mass_flow(power, h1, h2, shell_loss_fraction)
@@ -746,47 +920,42 @@ def compute(
     out["cooling_capacity_btu_h"] = btu_per_hour(capacity)
     out["cooling_capacity_tons"] = tons_of_refrigeration(capacity)
     out["eer"] = energy_efficiency_ratio(capacity, out["compressor_power"])
-
     if charge_model is not None:
-        out["charge_deviation"] = charge_model.deviation(
-            states["subcooling"].to_numpy(), states["superheat"].to_numpy()
-        )
-    if air is not None:
-        _air_side(out, air, n, capacity)
-    out["flags"] = _flag_text(flags)
-    frame = pd.DataFrame(out, index=states.index, copy=False)
-    return frame
+        out["charge_deviation"] = charge_model.deviation(part["subcooling"], part["superheat"])
+    return out, flags
 
 
-def _air_side(out: dict, air: AirReadings, n: int, capacity: np.ndarray) -> None:
-    moist = MoistAir.tabulated(air.pressure) if n > 1000 else MoistAir(air.pressure)
-    t_r = _column(air.return_air_temp, n)
-    rh_r = _column(air.return_air_humidity, n)
-    t_s = _column(air.supply_air_temp, n)
-    rh_s = _column(air.supply_air_humidity, n)
+def _air_side(part: dict, moist: MoistAir, capacity, rejection) -> dict[str, np.ndarray]:
+    """Air-side virtual sensors of one block of samples, as far as the readings allow."""
+    out = {}
+    t_r, rh_r, t_s = part["return_air_temp"], part["return_air_humidity"], part["supply_air_temp"]
     if t_r is not None and rh_r is not None and t_s is not None:
-        h_r, h_s, h_r_dry, volume = _evaporator_states(
-            moist, t_r, rh_r, t_s, rh_s, DEFAULT_COIL_LEAVING_RH
+        h_r, h_s, h_r_dry, volume = moist._evaporator_states(
+            t_r, rh_r, t_s, part["supply_air_humidity"], DEFAULT_COIL_LEAVING_RH
         )
-        if air.evaporator_airflow is not None:
-            dry_air = _column(air.evaporator_airflow, n) / volume
+        airflow = part["evaporator_airflow"]
+        if airflow is not None:
+            dry_air = airflow / volume
             out["evaporator_capacity_air"] = dry_air * (h_r - h_s)
             out["evaporator_sensible_capacity_air"] = dry_air * (h_r_dry - h_s)
             out["evaporator_latent_capacity_air"] = dry_air * (h_r - h_r_dry)
         out["virtual_evaporator_airflow"] = _airflow(capacity, volume, h_r - h_s)
-    t_in = _column(air.outdoor_air_temp, n)
-    t_out = _column(air.condenser_leaving_air_temp, n)
+    t_in, t_out = part["outdoor_air_temp"], part["condenser_leaving_air_temp"]
     if t_in is not None and t_out is not None:
         out["condenser_air_temp_rise"] = condenser_air_temperature_rise(t_out, t_in)
         out["virtual_condenser_airflow"] = virtual_condenser_airflow(
-            out["heat_rejection"], t_in, t_out, air.pressure, air=moist
+            rejection, t_in, t_out, air=moist
         )
+    return out
 
 
 def _flag_text(flags: np.ndarray) -> np.ndarray:
-    masks, inverse = np.unique(flags, return_inverse=True)
+    """Readable reasons per sample from the flag bits (one text per bit combination)."""
     texts = np.array(
-        ["; ".join(r for bit, r in FLAG_REASONS.items() if int(m) & bit) for m in masks],
+        [
+            "; ".join(reason for bit, reason in FLAG_REASONS.items() if mask & bit)
+            for mask in range(2 * max(FLAG_REASONS))
+        ],
         dtype=object,
     )
-    return texts[inverse]
+    return texts.take(flags)

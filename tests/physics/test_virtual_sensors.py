@@ -273,3 +273,48 @@ def test_bad_charge_models_are_refused_naming_the_field(kwargs, message):
 def test_moist_air_refuses_impossible_pressure():
     with pytest.raises(ValueError, match="outside 50-120 kPa"):
         vs.MoistAir(101.325)  # kPa given where Pa is expected
+
+
+def test_air_side_of_long_series_agrees_with_direct_hapropssi():
+    # compute() switches to the moist-air tables above 1000 samples. Every air-side column must
+    # then agree with the same balances written directly on CoolProp's HAPropsSI (independent of
+    # MoistAir): stated bound 0.3 % of the total capacity, 0.1 % on the condenser airflow.
+    # Condenser air leaving at 61-63 degC lies past the tables (60 degC): computed directly.
+    n, p = 1500, 95e3
+    rng = np.random.default_rng(21)
+    p_s, p_d, t_suc, t_liq, t_dis = _operating_points(n, seed=22)
+    states = cycle_states(FLUID, p_s, p_d, t_suc, t_liq, t_dis)
+    t_r, rh_r = rng.uniform(18.0, 35.0, n) + KELVIN, rng.uniform(0.2, 0.9, n)
+    t_s, t_in = rng.uniform(8.0, 18.0, n) + KELVIN, rng.uniform(-5.0, 45.0, n) + KELVIN
+    t_out = t_in + rng.uniform(5.0, 20.0, n)
+    t_out[:20] = rng.uniform(61.0, 63.0, 20) + KELVIN
+    t_r[20] = np.nan  # a missing reading gives NaN for that sample only
+    air = vs.AirReadings(t_r, rh_r, t_s, None, t_in, t_out, evaporator_airflow=0.6, pressure=p)
+    out = vs.compute(states, p_s, compressor_power=3000.0, air=air)
+
+    def props(output, temperature, name, value):
+        return HAPropsSI(output, "T", temperature, name, value, "P", p)
+
+    ok = np.isfinite(t_r)
+    w_r = props("W", t_r[ok], "R", rh_r[ok])
+    w_s = np.fmin(w_r, props("W", t_s[ok], "R", np.full(ok.sum(), 0.95)))  # wet-coil rule
+    h_r, h_s = props("H", t_r[ok], "W", w_r), props("H", t_s[ok], "W", w_s)
+    h_r_dry = props("H", t_r[ok], "W", w_s)
+    dry_air = 0.6 / props("Vda", t_r[ok], "W", w_r)
+    total = dry_air * (h_r - h_s)
+    bound = 3e-3 * np.abs(total)
+    np.testing.assert_array_less(np.abs(out["evaporator_capacity_air"][ok] - total), bound)
+    sensible = dry_air * (h_r_dry - h_s)
+    np.testing.assert_array_less(
+        np.abs(out["evaporator_sensible_capacity_air"][ok] - sensible), bound
+    )
+    np.testing.assert_array_less(
+        np.abs(out["evaporator_latent_capacity_air"][ok] - (total - sensible)), bound
+    )
+    assert np.isnan(out["evaporator_capacity_air"][~ok]).all()
+    assert np.isfinite(out["evaporator_capacity_air"][ok]).all()
+
+    w = props("W", t_in, "R", np.full(n, 0.5))
+    rise = props("H", t_out, "W", w) - props("H", t_in, "W", w)
+    airflow = out["heat_rejection"] * props("Vda", t_in, "W", w) / rise
+    np.testing.assert_allclose(out["virtual_condenser_airflow"], airflow, rtol=1e-3)
