@@ -1,4 +1,7 @@
-"""``rimewatch demo`` runs by itself into a folder and leaves readable, physically sound outputs."""
+"""``rimewatch demo`` runs the whole pipeline into a folder by itself (real SQLite, real files)."""
+
+import json
+import sqlite3
 
 import numpy as np
 import pandas as pd
@@ -7,35 +10,100 @@ from click.testing import CliRunner
 from matplotlib.image import imread
 
 from rimewatch.cli import main
-from rimewatch.commands.demo import DEMO_UNITS
+from rimewatch.commands.demo import DB_FILE, DEMO_UNITS
+
+DAYS = "3"
 
 
-def test_demo_writes_diagrams_and_cycle_table(tmp_path):
-    out = tmp_path / "demo-out"
-    result = CliRunner().invoke(main, ["demo", "--out", str(out)])
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo") / "out"
+    result = CliRunner().invoke(main, ["demo", "--out", str(out), "--days", DAYS])
     assert result.exit_code == 0, result.output
-    flat = " ".join(result.output.split())
-    assert str(out.resolve()) in flat
-    for unit in DEMO_UNITS:
-        assert unit.unit_id in result.output
-        png = out / f"{unit.unit_id}-ph.png"
-        assert imread(png).shape[0] > 300  # a real, decodable PNG
-    assert "caution:" in flat and "A3, highly flammable" in flat
+    return out, " ".join(result.output.split())
 
-    cycles = pd.read_csv(out / "cycles.csv", index_col="unit_id")
-    assert list(cycles.index) == [u.unit_id for u in DEMO_UNITS]
-    # 128 psig + 1 atm with 1 psi = 6894.757 Pa (NIST SP 811)
-    assert cycles.loc["RTU-1", "suction_pressure"] == pytest.approx(128 * 6894.757 + 101325.0)
-    # First law per kg (adiabatic compressor, isenthalpic valve): q_cond = q_evap + w
-    np.testing.assert_allclose(
-        cycles["heat_rejection_effect"],
-        cycles["refrigerating_effect"] + cycles["compression_work"],
-        rtol=1e-9,
-    )
-    # Second law: no cycle beats Carnot between its saturation temperatures
-    subcritical = cycles["cop_carnot"].notna()
-    assert subcritical.sum() == 3
-    assert (cycles.loc[subcritical, "cop"] < cycles.loc[subcritical, "cop_carnot"]).all()
-    # R744 above its critical pressure (73.77 bar, NIST WebBook) is flagged, the others are sound
-    assert "transcritical" in cycles.loc["CR-1", "flags"]
-    assert cycles.drop(index="CR-1")["flags"].isna().all()
+
+def _stored_counts(out):
+    with sqlite3.connect(out / DB_FILE) as db:
+        return dict(
+            db.execute(
+                "SELECT u.key, count(*) FROM readings r JOIN points p ON p.id = r.point_id "
+                "JOIN units u ON u.id = p.unit_id GROUP BY u.key"
+            ).fetchall()
+        )
+
+
+def test_demo_stores_every_readable_cell_and_quarantines_the_rest(demo_run):
+    out, _ = demo_run
+    counts = _stored_counts(out)
+    with sqlite3.connect(out / DB_FILE) as db:
+        quarantined = db.execute("SELECT count(*) FROM quarantine").fetchone()[0]
+    cells = 0
+    for unit in DEMO_UNITS:
+        table = pd.read_csv(out / "data" / f"{unit.unit_id}.csv", index_col="timestamp")
+        assert len(table) == float(DAYS) * 1440  # one line per simulated minute
+        cells += int(table.notna().sum().sum())
+        assert counts[unit.unit_id] > 0.9 * table.notna().sum().sum()
+    # Conservation: every non-empty cell is either a stored reading or a quarantined value
+    assert sum(counts.values()) + quarantined == cells
+
+
+def test_demo_converts_the_logged_units_to_si(demo_run):
+    out, _ = demo_run
+    table = pd.read_csv(out / "data" / "rtu-1.csv", index_col="timestamp")
+    first = table["rtu-1/suction_pressure"].dropna().iloc[:50]
+    with sqlite3.connect(out / DB_FILE) as db:
+        stored = db.execute(
+            "SELECT r.value FROM readings r JOIN points p ON p.id = r.point_id "
+            "JOIN units u ON u.id = p.unit_id WHERE u.key = 'rtu-1' "
+            "AND p.role = 'suction_pressure' ORDER BY r.ts_ms LIMIT 50"
+        ).fetchall()
+    site = (out / "site.yaml").read_text()
+    assert "unit: psig" in site and "elevation_m: 180.0" in site
+    # psig -> Pa absolute: 1 psi = 6894.757 Pa (NIST SP 811); atmosphere at 180 m from the
+    # ISO 2533 standard atmosphere, p = 101325 (1 - 2.25577e-5 h)^5.25588 = 99 191 Pa
+    atmosphere = 101325.0 * (1 - 2.25577e-5 * 180.0) ** 5.25588
+    expected = first.to_numpy() * 6894.757 + atmosphere
+    np.testing.assert_allclose([v for (v,) in stored], expected, rtol=1e-6)
+
+
+def test_demo_writes_reports_diagrams_and_a_physically_sound_summary(demo_run):
+    out, output = demo_run
+    for unit in DEMO_UNITS:
+        assert unit.unit_id in output
+        assert imread(out / f"{unit.unit_id}-ph.png").shape[0] > 300  # a real, decodable PNG
+        html = (out / f"commission-{unit.unit_id}.html").read_text()
+        assert unit.unit_id in html and ("GO" in html)
+    daily = pd.read_csv(out / "daily-summary.csv")
+    assert set(daily["unit"]) == {u.unit_id for u in DEMO_UNITS}
+    # Second law: no daily median cycle beats Carnot between its median saturation temperatures
+    carnot = daily["t_evap"] / (daily["t_cond"] - daily["t_evap"])
+    assert (daily["cop_virtual"] < carnot).all()
+    assert (daily["cop_virtual"] > 1.0).all() and (daily["cooling_capacity"] > 0).all()
+    truth = json.loads((out / "ground_truth.json").read_text())
+    assert truth["sp-1"]["faults"] == [] and truth["rtu-1"]["faults"][0]["code"] == "low_charge"
+    assert str(out.resolve()) in output
+    assert "ground truth" in output and "caution:" in output
+    assert "A2L" in output  # R32 is class A2L (ASHRAE 34)
+
+
+def test_demo_healthy_unit_raises_no_fault_event(demo_run):
+    out, _ = demo_run
+    with sqlite3.connect(out / DB_FILE) as db:
+        tables = {name for (name,) in db.execute("SELECT name FROM sqlite_master")}
+        if "events" not in tables:
+            pytest.skip("detection is not in this build: no events table")
+        rows = db.execute(
+            "SELECT e.code FROM events e JOIN units u ON u.id = e.unit_id WHERE u.key = 'sp-1'"
+        ).fetchall()
+    assert rows == []
+
+
+def test_demo_run_again_into_the_same_folder_starts_clean(demo_run):
+    out, _ = demo_run
+    before = _stored_counts(out)
+    (out / "notes.txt").write_text("not the demo's")  # a user's file stays
+    result = CliRunner().invoke(main, ["demo", "--out", str(out), "--days", DAYS])
+    assert result.exit_code == 0, result.output
+    assert _stored_counts(out) == before  # same seed, same data, nothing doubled
+    assert (out / "notes.txt").read_text() == "not the demo's"
