@@ -1,0 +1,423 @@
+"""Diagnosis: residual sign patterns and decoupled indicators -> one ranked fault with a confidence.
+
+**Residuals.** Per UTC hour, the median over its steady samples of (measured - expected) for each
+feature: expected from the fault-free reference models once a baseline exists, from the day-one
+rules (:mod:`rimewatch.detect.rules`) before. Each residual r has a band eps (no fault inside it)
+and an uncertainty sigma.
+
+**Classifier** after Rossi and Braun [1]: every fault class predicts for each feature a residual
+that is positive (+), negative (-) or inside the band (0). Treating the hour's residual as normal
+with mean r and standard deviation sigma,
+
+.. math::
+
+    P_+ = 1 - \\Phi\\left(\\frac{\\epsilon - r}{\\sigma}\\right), \\quad
+    P_- = \\Phi\\left(\\frac{-\\epsilon - r}{\\sigma}\\right), \\quad P_0 = 1 - P_+ - P_-
+
+and the likelihood of a class is the product over its features of the probability of its
+predicted sign (features assumed independent, as in [1]). The hour is abnormal when the
+fault-free class (every feature 0) has probability below ``ABNORMAL_BELOW``; the fault classes'
+likelihoods, normalised, rank the candidates and the top one's share is the confidence.
+
+**Patterns.** The seven temperature features of [1] (evaporating, superheat, condensing,
+subcooling, discharge, condenser air rise, evaporator air drop) plus decoupled indicators after
+Li and Braun [2]: the liquid temperature against outdoor air (charge vs. non-condensables), the
+compressor volumetric-efficiency ratio (valve leakage), virtual condenser and evaporator airflows
+(fouled coils, lost airflow) and the liquid-line pressure drop (restriction). [1] studied a unit
+with a fixed orifice; on units with a thermostatic or electronic valve the valve holds superheat,
+so superheat carries little, and **overcharge, non-condensable gas and condenser fouling share one
+sign pattern** in [1]'s seven features (condensing and discharge temperatures up, superheat
+held). The decoupled indicators separate them: condenser fouling lowers the condenser airflow and
+raises the condenser air temperature rise; overcharge backs liquid up into the condenser and cools
+it towards outdoor air (liquid approach down); non-condensable gas adds its partial pressure, so
+the pressure-based subcooling rises while the liquid temperature does not fall. Without a
+liquid-pressure point a liquid-line restriction and a stuck or blocked expansion device also
+share a pattern (both starve the evaporator): both are then ranked with a split confidence.
+The signs come from [1] (fixed orifice, table from memory) and from the physics; each entry was
+checked against our simulator (:mod:`rimewatch.sim`) at moderate severity.
+
+References
+----------
+.. [1] Rossi, T. M., Braun, J. E. (1997). "A statistical, rule-based fault detection and
+   diagnostic method for vapor compression air conditioners." HVAC&R Research 3(1): 19-37.
+.. [2] Li, H., Braun, J. E. (2007). "Decoupling features and virtual sensors for diagnosis of
+   faults in vapor compression air conditioners." International Journal of Refrigeration
+   30(3): 546-564.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from math import erf, sqrt
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
+from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS
+
+REFRIGERANT_FAULTS = (
+    "low_charge",
+    "overcharge",
+    "condenser_fouling",
+    "evaporator_airflow_low",
+    "liquid_line_restriction",
+    "compressor_valve_leakage",
+    "non_condensables",
+    "expansion_valve_fault",
+)
+ABNORMAL_BELOW = 0.05
+MIN_STEADY_PER_HOUR = 10
+#: smallest band per feature, whatever the baseline's spread [feature unit]
+BAND_FLOOR = {
+    "volumetric_efficiency_ratio": 0.05,
+    "condenser_airflow_ratio": 0.08,
+    "evaporator_airflow_ratio": 0.08,
+    "liquid_line_drop": 20e3,
+}
+TEMPERATURE_BAND_FLOOR_K = 0.8
+BAND_SIGMAS = 3.0
+
+_RB = ("t_evap", "superheat", "t_cond", "subcooling", "discharge_temp")
+_VALVE = {
+    # feature: sign; "0+" = inside the band or above it; absent = not used
+    "low_charge": {
+        "t_cond": "-", "subcooling": "-", "liquid_approach": "+",
+        "volumetric_efficiency_ratio": "0",
+        "condenser_airflow_ratio": "0", "liquid_line_drop": "0",
+    },
+    "overcharge": {
+        "t_cond": "+", "superheat": "0-", "subcooling": "+", "discharge_temp": "+",
+        "liquid_approach": "-", "condenser_air_rise": "0+", "condenser_airflow_ratio": "0",
+        "volumetric_efficiency_ratio": "0",
+    },
+    "condenser_fouling": {
+        "t_cond": "+", "superheat": "0", "discharge_temp": "+", "condenser_air_rise": "+",
+        "liquid_approach": "+", "condenser_airflow_ratio": "-", "volumetric_efficiency_ratio": "0",
+    },
+    "evaporator_airflow_low": {
+        "t_evap": "-", "superheat": "0-", "evaporator_air_drop": "+",
+        "evaporator_airflow_ratio": "-",
+        "volumetric_efficiency_ratio": "0", "condenser_air_rise": "0-",
+    },
+    "liquid_line_restriction": {
+        "t_evap": "-", "superheat": "+", "subcooling": "+", "discharge_temp": "+",
+        "liquid_line_drop": "+", "volumetric_efficiency_ratio": "0",
+    },
+    "compressor_valve_leakage": {
+        "t_evap": "+", "t_cond": "-", "superheat": "0-", "volumetric_efficiency_ratio": "-",
+        "condenser_air_rise": "-",
+    },
+    "non_condensables": {
+        "t_cond": "+", "superheat": "0-", "subcooling": "+", "discharge_temp": "0+",
+        "liquid_approach": "0+", "condenser_air_rise": "0", "condenser_airflow_ratio": "0",
+        "volumetric_efficiency_ratio": "0",
+    },
+    "expansion_valve_fault": {
+        "t_evap": "-", "superheat": "+", "subcooling": "+", "discharge_temp": "+",
+        "liquid_line_drop": "0", "volumetric_efficiency_ratio": "0",
+    },
+}  # fmt: skip
+_ORIFICE = {
+    "low_charge": {
+        "t_evap": "-", "superheat": "+", "t_cond": "-", "subcooling": "-", "discharge_temp": "+",
+        "condenser_air_rise": "-", "volumetric_efficiency_ratio": "0", "liquid_line_drop": "0",
+    },
+    "overcharge": {
+        "t_evap": "+", "superheat": "-", "t_cond": "+", "subcooling": "+", "discharge_temp": "-",
+        "liquid_approach": "-", "condenser_airflow_ratio": "0", "volumetric_efficiency_ratio": "0",
+    },
+    "condenser_fouling": {
+        "t_evap": "+", "t_cond": "+", "discharge_temp": "+", "condenser_air_rise": "+",
+        "liquid_approach": "+", "condenser_airflow_ratio": "-", "volumetric_efficiency_ratio": "0",
+    },
+    "evaporator_airflow_low": {
+        "t_evap": "-", "superheat": "-", "t_cond": "-", "discharge_temp": "-",
+        "evaporator_air_drop": "+", "evaporator_airflow_ratio": "-",
+        "volumetric_efficiency_ratio": "0",
+    },
+    "liquid_line_restriction": {
+        "t_evap": "-", "superheat": "+", "subcooling": "+", "discharge_temp": "+",
+        "liquid_line_drop": "+", "volumetric_efficiency_ratio": "0",
+    },
+    "compressor_valve_leakage": {
+        "t_evap": "+", "t_cond": "-", "superheat": "-", "discharge_temp": "-",
+        "volumetric_efficiency_ratio": "-", "condenser_air_rise": "-",
+    },
+    "non_condensables": {
+        "t_evap": "+", "t_cond": "+", "superheat": "-", "subcooling": "+",
+        "liquid_approach": "0+", "condenser_air_rise": "0", "condenser_airflow_ratio": "0",
+        "volumetric_efficiency_ratio": "0",
+    },
+    "expansion_valve_fault": {
+        "t_evap": "-", "superheat": "+", "subcooling": "+", "discharge_temp": "+",
+        "liquid_line_drop": "0", "volumetric_efficiency_ratio": "0",
+    },
+}  # fmt: skip
+PATTERNS = {"valve": _VALVE, "orifice": _ORIFICE}
+#: a feature that deviates alone points at its own sensor (residual drift)
+SINGLE_SENSOR_FEATURES = {
+    "superheat": "suction_temp",
+    "discharge_temp": "discharge_temp",
+    "liquid_approach": "liquid_temp",
+    "evaporator_air_drop": "supply_air_temp",
+    "condenser_air_rise": "condenser_leaving_air_temp",
+}
+#: each fault's main feature and the direction it moves (severity when no impact is known)
+SEVERITY_FEATURE = {
+    "low_charge": ("subcooling", -1),
+    "overcharge": ("subcooling", 1),
+    "condenser_fouling": ("t_cond", 1),
+    "evaporator_airflow_low": ("t_evap", -1),
+    "liquid_line_restriction": ("superheat", 1),
+    "compressor_valve_leakage": ("volumetric_efficiency_ratio", -1),
+    "non_condensables": ("t_cond", 1),
+    "expansion_valve_fault": ("superheat", 1),
+}
+SEVERITY_LABELS = ((0.05, "mild"), (0.15, "moderate"))  # loss share below which the label holds
+
+
+def _phi(x: np.ndarray) -> np.ndarray:
+    return 0.5 * (1.0 + np.vectorize(erf)(np.asarray(x, float) / sqrt(2.0)))
+
+
+def sign_probabilities(r, eps, sigma) -> dict[str, np.ndarray]:
+    """P(+), P(-), P(0) of residuals r with band eps and uncertainty sigma (arrays)."""
+    r, eps, sigma = (np.asarray(v, float) for v in (r, eps, sigma))
+    plus = 1.0 - _phi((eps - r) / sigma)
+    minus = _phi((-eps - r) / sigma)
+    zero = np.clip(1.0 - plus - minus, 0.0, 1.0)
+    return {"+": plus, "-": minus, "0": zero, "0+": zero + plus, "0-": zero + minus}
+
+
+@dataclass(frozen=True)
+class HourlyResiduals:
+    """Hourly residuals of one unit: values, bands and uncertainties (hours x features)."""
+
+    r: pd.DataFrame
+    eps: pd.DataFrame
+    sigma: pd.DataFrame
+    steady_samples: pd.Series
+    extrapolated: pd.Series  # share of the hour's samples judged outside the training envelope
+
+
+def hourly_residuals(
+    residuals: pd.DataFrame,
+    bands: dict[str, float],
+    sigmas: dict[str, float],
+    hours: pd.DatetimeIndex,
+    extrapolated: pd.Series | None = None,
+    widening: float = 1.0,
+) -> HourlyResiduals:
+    """Medians of per-minute residuals per hour, with bands and uncertainties.
+
+    Parameters
+    ----------
+    residuals : per-minute residuals of steady samples.
+    bands, sigmas : per feature: the band eps and the uncertainty of an hourly median.
+    hours : the hours to report on.
+    extrapolated : per-minute flag, sample judged within the extrapolation margin.
+    widening : factor on eps and sigma for hours mostly extrapolated.
+    """
+    hour_of = residuals.index.floor("1h")
+    counts = pd.Series(1, index=residuals.index).groupby(hour_of).sum()
+    counts = counts.reindex(hours, fill_value=0)
+    medians = residuals.groupby(hour_of).median().reindex(hours)
+    medians[counts < MIN_STEADY_PER_HOUR] = np.nan
+    if extrapolated is None:
+        share = pd.Series(0.0, index=hours)
+    else:
+        share = extrapolated.astype(float).groupby(hour_of).mean().reindex(hours, fill_value=0.0)
+    factor = np.where(share.to_numpy() > 0.5, widening, 1.0)[:, None]
+    columns = list(medians.columns)
+    eps = pd.DataFrame(
+        np.array([bands.get(c, np.nan) for c in columns])[None, :] * factor,
+        index=hours,
+        columns=columns,
+    )
+    sigma = pd.DataFrame(
+        np.array([sigmas.get(c, np.nan) for c in columns])[None, :] * factor,
+        index=hours,
+        columns=columns,
+    )
+    return HourlyResiduals(medians, eps, sigma, counts, share)
+
+
+def band_and_sigma(feature: str, sigma_hourly: float) -> tuple[float, float]:
+    """Band eps = max(3 sigma, floor) and the uncertainty used in the sign probabilities."""
+    floor = BAND_FLOOR.get(feature, TEMPERATURE_BAND_FLOOR_K)
+    sigma = sigma_hourly if np.isfinite(sigma_hourly) else floor
+    eps = max(BAND_SIGMAS * sigma, floor)
+    return eps, max(sigma, floor / BAND_SIGMAS)
+
+
+def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) -> dict:
+    """One hour: probability of no fault and the normalised ranking of the fault classes.
+
+    Returns
+    -------
+    dict with ``normal`` (probability every feature is inside its band), ``ranking`` [(code,
+    share)] best first (empty when no class fits at all), ``deviating`` (features with P0 < 0.05).
+    """
+    available = r.notna() & eps.notna() & sigma.notna()
+    r, eps, sigma = r[available], eps[available], sigma[available]
+    probabilities = sign_probabilities(r.to_numpy(), eps.to_numpy(), sigma.to_numpy())
+    names = list(r.index)
+    p = {sign: dict(zip(names, values, strict=True)) for sign, values in probabilities.items()}
+    normal = float(np.prod(probabilities["0"])) if names else 1.0
+    deviating = [n for n in names if p["0"][n] < 0.05]
+    scores = {}
+    for code, pattern in PATTERNS[device_class].items():
+        used = [f for f in pattern if f in p["0"]]
+        signed = [f for f in used if pattern[f] in ("+", "-")]
+        if len(signed) < 2:
+            continue  # not enough of this fault's evidence is measured
+        scores[code] = float(np.prod([p[pattern[f]][f] for f in used]))
+    total = sum(scores.values())
+    ranking = []
+    if total > 1e-12:
+        ranking = sorted(((c, s / total) for c, s in scores.items()), key=lambda cs: -cs[1])
+    return {"normal": normal, "ranking": ranking, "deviating": deviating, "fit": total}
+
+
+@dataclass(frozen=True)
+class ImpactInputs:
+    """Per-hour measured and expected capacity and power for the impact estimate (W)."""
+
+    capacity: pd.Series
+    capacity_expected: pd.Series
+    power: pd.Series
+    power_expected: pd.Series
+    running_hours_per_day: float
+
+
+def impact(inputs: ImpactInputs | None, hour, tariff_per_kWh: float) -> dict:
+    """Capacity lost %, extra power %, extra kWh and cost per day for one hour's evidence.
+
+    Extra energy: the same cooling at the reduced COP needs E (COP_ref / COP - 1) more energy,
+    with E the energy the unit uses per day at this hour's power and its running hours per day.
+    """
+    if inputs is None:
+        return {}
+    q, q0 = inputs.capacity.get(hour, np.nan), inputs.capacity_expected.get(hour, np.nan)
+    w, w0 = inputs.power.get(hour, np.nan), inputs.power_expected.get(hour, np.nan)
+    if not all(np.isfinite(v) and v > 0 for v in (q, q0, w, w0)):
+        return {}
+    cop, cop0 = q / w, q0 / w0
+    daily_kwh = w / 1000.0 * inputs.running_hours_per_day
+    extra_kwh = max(0.0, daily_kwh * (cop0 / cop - 1.0))
+    return {
+        "capacity_loss_pct": round(100.0 * (1.0 - q / q0), 1),
+        "extra_power_pct": round(100.0 * (w / w0 - 1.0), 1),
+        "cop_loss_pct": round(100.0 * (1.0 - cop / cop0), 1),
+        "extra_kwh_per_day": round(extra_kwh, 2),
+        "cost_per_day": round(extra_kwh * tariff_per_kWh, 2),
+    }
+
+
+def severity_score(code: str, r: pd.Series, eps: pd.Series, hour_impact: dict) -> float:
+    """0..1: from the lost share of capacity or COP when known, else from the main residual."""
+    losses = [hour_impact.get("capacity_loss_pct"), hour_impact.get("cop_loss_pct")]
+    losses = [v / 100.0 for v in losses if v is not None and np.isfinite(v)]
+    if losses:
+        return float(np.clip(max(losses) / 0.3, 0.0, 1.0))
+    feature, direction = SEVERITY_FEATURE[code]
+    value, band = r.get(feature, np.nan), eps.get(feature, np.nan)
+    if not (np.isfinite(value) and np.isfinite(band) and band > 0):
+        return 0.1
+    return float(np.clip(direction * value / band / 6.0, 0.05, 1.0))
+
+
+def severity_label(score: float) -> str:
+    """mild / moderate / severe from a 0..1 score (0.3 of capacity or COP lost = 1)."""
+    loss = 0.3 * score
+    for limit, label in SEVERITY_LABELS:
+        if loss < limit:
+            return label
+    return "severe"
+
+
+def diagnose(
+    residuals: HourlyResiduals,
+    device_class: str,
+    faulty: dict,
+    impacts: ImpactInputs | None = None,
+    tariff_per_kWh: float = 0.25,
+    residual_drift: bool = True,
+) -> HourlyFindings:
+    """Per hour: abnormal or not, the ranked fault, its confidence, severity and impact.
+
+    Parameters
+    ----------
+    residuals : from :func:`hourly_residuals`.
+    device_class : ``"valve"`` (TXV/EEV) or ``"orifice"``.
+    faulty : hour -> points under a sensor finding (:func:`rimewatch.detect.quality.faulty_points`):
+        their features are dropped for that hour; a fault on a driver point skips the hour.
+    impacts : measured/expected capacity and power per hour, for the impact figures.
+    tariff_per_kWh : energy price for the cost per day [currency/kWh].
+    residual_drift : report a feature deviating alone as its sensor's drift (baseline mode; the
+        day-one rules judge too few features for that).
+    """
+    hours = residuals.r.index
+    out = HourlyFindings.empty(hours)
+    out.steady_samples = residuals.steady_samples
+    checked: list = []
+    found: dict = {code: {} for code in REFRIGERANT_FAULTS}
+    drift_checked: dict = {p: [] for p in SINGLE_SENSOR_FEATURES.values()}
+    drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
+    for hour in hours:
+        r = residuals.r.loc[hour]
+        if r.notna().sum() < 3:
+            continue
+        bad = faulty.get(hour, set())
+        if "all" in bad or bad & set(DRIVER_POINTS):
+            continue
+        drop = [f for f in r.index if set(FEATURE_POINTS.get(f, ())) & bad]
+        r = r.drop(drop)
+        eps, sigma = residuals.eps.loc[hour, r.index], residuals.sigma.loc[hour, r.index]
+        result = classify(r, eps, sigma, device_class)
+        checked.append(hour)
+        for feature, point in SINGLE_SENSOR_FEATURES.items():
+            if feature in r.index and np.isfinite(r[feature]):
+                drift_checked[point].append(hour)
+        if result["normal"] >= ABNORMAL_BELOW:
+            continue
+        samples = int(residuals.steady_samples.get(hour, 0))
+        alone = len(result["deviating"]) == 1
+        if residual_drift and alone and result["deviating"][0] in SINGLE_SENSOR_FEATURES:
+            feature = result["deviating"][0]
+            point = SINGLE_SENSOR_FEATURES[feature]
+            if not result["ranking"] or result["ranking"][0][1] < 0.5 or result["fit"] < 1e-3:
+                drift_found[point][hour] = Finding(
+                    float(min(1.0, abs(r[feature]) / (6 * eps[feature]))),
+                    0.6,
+                    f"{feature} residual {r[feature]:+.2f} alone, every other feature as "
+                    "expected: the sensor has probably drifted",
+                    samples,
+                )
+                continue
+        if not result["ranking"] or result["fit"] < 1e-3:
+            continue  # abnormal but no fault pattern fits: not raised as a refrigerant fault
+        code, confidence = result["ranking"][0]
+        hour_impact = impact(impacts, hour, tariff_per_kWh)
+        score = severity_score(code, r, eps, hour_impact)
+        evidence = ", ".join(
+            f"{f} {r[f]:+.2f}" for f in result["deviating"] if f in PATTERNS[device_class][code]
+        )
+        found[code][hour] = Finding(
+            score,
+            float(confidence),
+            f"residuals {evidence}" if evidence else "residual pattern",
+            samples,
+            tuple((c, round(float(s), 3)) for c, s in result["ranking"][:4]),
+            hour_impact,
+        )
+    for code in REFRIGERANT_FAULTS:
+        out.set(code, checked, found[code])
+    for point in drift_found:
+        out.set(
+            finding_key("sensor_fault", f"{point}:drift"),
+            drift_checked[point],
+            drift_found[point],
+        )
+    return out

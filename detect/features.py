@@ -1,0 +1,169 @@
+"""Per-minute features of a running unit: the cycle, the air side and the virtual sensors.
+
+Columns (SI; NaN where a reading is missing):
+
+==========================  ====  ==========================================================
+t_evap, t_cond              K     evaporating / condensing dew points from the pressures
+superheat, subcooling       K     suction superheat, liquid subcooling (cycle_states)
+discharge_temp              K     measured compressor discharge temperature
+liquid_temp                 K     measured liquid-line temperature
+condensing_approach         K     t_cond - outdoor_air_temp
+liquid_approach             K     liquid_temp - outdoor_air_temp
+evaporator_air_drop         K     return (or box) air - supply air temperature
+condenser_air_rise          K     condenser leaving - entering air temperature
+volumetric_efficiency_ratio  -    energy-balance / map mass flow (needs power and a map)
+condenser_airflow_ratio     -     virtual condenser airflow / design airflow
+evaporator_airflow_ratio    -     virtual evaporator airflow / design airflow
+liquid_line_drop            Pa    discharge - liquid pressure (needs a liquid pressure point)
+cooling_capacity            W     map mass flow x refrigerating effect (x the volumetric-
+                                  efficiency ratio where known: a leaking compressor pumps less)
+compressor_power            W     measured, else the map's
+cop                         -     cooling_capacity / compressor_power
+==========================  ====  ==========================================================
+
+Below ``MIN_SUPERHEAT_FOR_ENTHALPY_K`` of superheat the suction state (h1) is unknown (liquid may
+be present), so the enthalpy-based features of ``ENTHALPY_FEATURES`` are left NaN there.
+
+Driving conditions beside them: outdoor_air_temp, return_air_temp (box_temp for cold rooms),
+return_air_humidity, compressor_speed.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.detect.unit import UnitInfo
+from rimewatch.physics import cycle_states
+from rimewatch.physics import virtual_sensors as vs
+
+MIN_SUPERHEAT_FOR_ENTHALPY_K = 1.0
+ENTHALPY_FEATURES = (
+    "volumetric_efficiency_ratio",
+    "condenser_airflow_ratio",
+    "evaporator_airflow_ratio",
+    "cooling_capacity",
+    "cop",
+)
+DRIVERS = ("outdoor_air_temp", "return_air_temp", "return_air_humidity", "compressor_speed")
+FEATURES = (
+    "t_evap",
+    "t_cond",
+    "superheat",
+    "subcooling",
+    "discharge_temp",
+    "liquid_temp",
+    "condensing_approach",
+    "liquid_approach",
+    "evaporator_air_drop",
+    "condenser_air_rise",
+    "volumetric_efficiency_ratio",
+    "condenser_airflow_ratio",
+    "evaporator_airflow_ratio",
+    "liquid_line_drop",
+    "cooling_capacity",
+    "compressor_power",
+    "cop",
+)
+
+
+def _column(grid: pd.DataFrame, name: str):
+    return grid[name] if name in grid and grid[name].notna().any() else None
+
+
+def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.DataFrame:
+    """Features and driving conditions for the samples selected by ``rows`` (boolean Series).
+
+    Parameters
+    ----------
+    grid : one-minute frame of readings (SI) from :func:`rimewatch.detect.steady.align`.
+    unit : the unit's description.
+    rows : which samples to compute (usually the running ones).
+    """
+    sub = grid.loc[rows.to_numpy(dtype=bool)]
+    out = pd.DataFrame(index=sub.index)
+    if sub.empty or _column(sub, "suction_pressure") is None:
+        return out.assign(**dict.fromkeys((*FEATURES, *DRIVERS), np.nan))
+    states = cycle_states(
+        unit.refrigerant,
+        sub["suction_pressure"],
+        sub.get("discharge_pressure", np.nan),
+        suction_temp=_column(sub, "suction_temp"),
+        liquid_temp=_column(sub, "liquid_temp"),
+        discharge_temp=_column(sub, "discharge_temp"),
+        liquid_pressure=_column(sub, "liquid_pressure"),
+    )
+    for name in ("t_evap", "t_cond", "superheat", "subcooling"):
+        out[name] = states[name].to_numpy()
+    nan = pd.Series(np.nan, index=sub.index)
+    for name in ("discharge_temp", "liquid_temp", *DRIVERS):
+        out[name] = sub.get(name, nan)
+    zone = sub.get("return_air_temp", nan)
+    if "box_temp" in sub:
+        zone = zone.fillna(sub["box_temp"])
+        out["return_air_temp"] = zone
+    out["condensing_approach"] = out["t_cond"] - out["outdoor_air_temp"]
+    out["liquid_approach"] = out["liquid_temp"] - out["outdoor_air_temp"]
+    supply = sub.get("supply_air_temp", nan)
+    out["evaporator_air_drop"] = zone - supply
+    leaving = sub.get("condenser_leaving_air_temp", nan)
+    out["condenser_air_rise"] = leaving - out["outdoor_air_temp"]
+    if "liquid_pressure" in sub and "discharge_pressure" in sub:
+        out["liquid_line_drop"] = sub["discharge_pressure"] - sub["liquid_pressure"]
+    else:
+        out["liquid_line_drop"] = np.nan
+
+    power = _column(sub, "compressor_power")
+    air = vs.AirReadings(
+        return_air_temp=zone.to_numpy(),
+        return_air_humidity=_column(sub, "return_air_humidity"),
+        supply_air_temp=supply.to_numpy(),
+        outdoor_air_temp=out["outdoor_air_temp"].to_numpy(),
+        condenser_leaving_air_temp=leaving.to_numpy(),
+        pressure=unit.atmospheric_pressure,
+    )
+    if air.return_air_humidity is not None:
+        air = vs.AirReadings(**{**air.__dict__, "return_air_humidity": air.return_air_humidity})
+    virtual = vs.compute(
+        states,
+        sub["suction_pressure"].to_numpy(),
+        compressor_map=unit.compressor_map,
+        compressor_power=None if power is None else power.to_numpy(),
+        compressor_speed=_column(sub, "compressor_speed"),
+        air=air if air.return_air_humidity is not None else _dry_air(air),
+    )
+    out["volumetric_efficiency_ratio"] = virtual["volumetric_efficiency_ratio"].to_numpy()
+    # the map assumes a sound compressor: scale its capacity by the measured pumping share
+    ratio = virtual["volumetric_efficiency_ratio"].to_numpy()
+    capacity = virtual["cooling_capacity"].to_numpy()
+    out["cooling_capacity"] = np.where(np.isfinite(ratio), capacity * ratio, capacity)
+    out["compressor_power"] = virtual["compressor_power"].to_numpy()
+    out["cop"] = virtual["cop"].to_numpy()
+    out["condenser_airflow_ratio"] = _ratio(
+        virtual["virtual_condenser_airflow"], unit.condenser_airflow_m3_s
+    )
+    out["evaporator_airflow_ratio"] = _ratio(
+        virtual["virtual_evaporator_airflow"], unit.evaporator_airflow_m3_s
+    )
+    # with (nearly) no superheat the suction may carry liquid: h1, and every virtual sensor
+    # built on it (energy-balance flow, capacity, heat rejection, airflows), is unknown
+    wet = ~(out["superheat"].to_numpy() >= MIN_SUPERHEAT_FOR_ENTHALPY_K)
+    for name in ENTHALPY_FEATURES:
+        out.loc[wet, name] = np.nan
+    return out
+
+
+def _dry_air(air: vs.AirReadings) -> vs.AirReadings:
+    """Without a return humidity only the condenser side can be computed."""
+    return vs.AirReadings(
+        outdoor_air_temp=air.outdoor_air_temp,
+        condenser_leaving_air_temp=air.condenser_leaving_air_temp,
+        pressure=air.pressure,
+    )
+
+
+def _ratio(values: pd.Series, design: float | None) -> np.ndarray:
+    values = values.to_numpy(dtype=float)
+    if design is None or not np.isfinite(design) or design <= 0:
+        return np.full(len(values), np.nan)
+    return values / design

@@ -1,0 +1,186 @@
+"""One unit's analysis from raw readings to findings and events (pure: frames in, objects out).
+
+Steps: align on the one-minute grid; blank out-of-range values; running (start-up excluded),
+standstill and steady samples; per-minute features (cycle, air side, virtual sensors); sensor
+checks; residuals (reference models when a baseline exists, the day-one rules otherwise); the
+diagnosis; the event lifecycle. :func:`fit_unit_baseline` runs the same first steps and fits the
+reference models on the steady samples of a period the user marks fault-free.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.detect import diagnose, events, quality, rules, steady
+from rimewatch.detect.features import unit_features
+from rimewatch.detect.findings import HourlyFindings
+from rimewatch.detect.reference import EXTRAPOLATION_WIDENING, Baseline, fit_baseline
+from rimewatch.detect.unit import UnitInfo
+
+#: features judged by the diagnosis (residuals); capacity and power only feed the impact figures
+RESIDUAL_FEATURES = (
+    "t_evap",
+    "t_cond",
+    "superheat",
+    "subcooling",
+    "discharge_temp",
+    "liquid_approach",
+    "evaporator_air_drop",
+    "condenser_air_rise",
+    "volumetric_efficiency_ratio",
+    "condenser_airflow_ratio",
+    "evaporator_airflow_ratio",
+    "liquid_line_drop",
+)
+IMPACT_FEATURES = ("cooling_capacity", "compressor_power")
+DEFAULT_TARIFF_PER_KWH = 0.25
+
+
+@dataclass
+class Prepared:
+    """The shared first steps of analysis and baseline fitting."""
+
+    grid: pd.DataFrame
+    hours: pd.DatetimeIndex
+    running: pd.Series
+    features: pd.DataFrame
+    steady: pd.Series  # over features.index
+    quality: HourlyFindings
+
+
+@dataclass
+class UnitAnalysis:
+    """What :func:`analyze_unit` found for one unit."""
+
+    unit: str
+    findings: HourlyFindings
+    events: list
+    stats: dict
+
+
+def _hour_range(index: pd.DatetimeIndex, since=None, until=None) -> pd.DatetimeIndex:
+    first = pd.Timestamp(since).floor("1h") if since is not None else index[0].floor("1h")
+    last = pd.Timestamp(until) - pd.Timedelta("1ns") if until is not None else index[-1]
+    return pd.date_range(first, last.floor("1h"), freq="1h")
+
+
+def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prepared:
+    """Align, blank, find running/standstill/steady samples, compute features, check sensors."""
+    grid = steady.align(frame)
+    if since is not None or until is not None:
+        grid = grid.loc[since:until]
+        if until is not None and len(grid) and grid.index[-1] >= pd.Timestamp(until):
+            grid = grid.iloc[:-1]
+    if grid.empty:
+        raise ValueError(f"unit {unit.key}: no readings in the period")
+    hours = _hour_range(grid.index, since, until)
+    grid, blanked = quality.blank_out_of_range(grid, unit)
+    running = steady.running(grid)
+    still = steady.standstill_samples(grid)
+    features = unit_features(grid, unit, running)
+    signals = features.join(grid[[c for c in ("suction_temp", "supply_air_temp") if c in grid]])
+    steady_mask = steady.steady(signals, running.loc[features.index])
+    checks = quality.check_quality(
+        grid, blanked, running, still, unit, hours, features, steady_mask
+    )
+    return Prepared(grid, hours, running, features, steady_mask, checks)
+
+
+def _clean_steady_rows(prepared: Prepared) -> pd.Series:
+    """Steady samples in hours without a sensor finding on a driver or on every point."""
+    faulty = quality.faulty_points(prepared.quality)
+    hour_of = prepared.features.index.floor("1h")
+    blocked = {h for h, points in faulty.items() if points}
+    keep = prepared.steady.to_numpy() & ~np.asarray(hour_of.isin(list(blocked)))
+    return pd.Series(keep, index=prepared.features.index)
+
+
+def fit_unit_baseline(frame: pd.DataFrame, unit: UnitInfo, start, end) -> Baseline:
+    """Reference models from a period the user marks fault-free (readings in ``frame``)."""
+    prepared = prepare(frame, unit, start, end)
+    rows = _clean_steady_rows(prepared)
+    training = prepared.features.loc[rows.to_numpy()]
+    return fit_baseline(unit.key, training, start, end, (*RESIDUAL_FEATURES, *IMPACT_FEATURES))
+
+
+def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):
+    steady_rows = prepared.features.loc[prepared.steady.to_numpy()]
+    if baseline is None:
+        deviations, bands = rules.expectations(steady_rows, unit)
+        sigmas = dict.fromkeys(deviations, rules.RULE_UNCERTAINTY_K)
+        return diagnose.hourly_residuals(deviations, bands, sigmas, prepared.hours), None
+    residuals, position = baseline.residuals(steady_rows)
+    bands, sigmas = {}, {}
+    for name in RESIDUAL_FEATURES:
+        model = baseline.models.get(name)
+        if model is not None:
+            bands[name], sigmas[name] = diagnose.band_and_sigma(name, model.sigma_hourly)
+    judged = residuals[[c for c in RESIDUAL_FEATURES if c in residuals]]
+    hourly = diagnose.hourly_residuals(
+        judged, bands, sigmas, prepared.hours, position == 1, EXTRAPOLATION_WIDENING
+    )
+    return hourly, _impact_inputs(prepared, steady_rows, residuals, baseline)
+
+
+def _impact_inputs(prepared, steady_rows, residuals, baseline) -> diagnose.ImpactInputs | None:
+    if not all(name in baseline.models and name in residuals for name in IMPACT_FEATURES):
+        return None
+    hour_of = steady_rows.index.floor("1h")
+    measured = steady_rows[list(IMPACT_FEATURES)].groupby(hour_of).median()
+    expected = (
+        (steady_rows[list(IMPACT_FEATURES)] - residuals[list(IMPACT_FEATURES)])
+        .groupby(hour_of)
+        .median()
+    )
+    days = max(len(prepared.hours) / 24.0, 1.0 / 24.0)
+    running_hours = float(prepared.running.sum()) / 60.0 / days
+    return diagnose.ImpactInputs(
+        measured["cooling_capacity"],
+        expected["cooling_capacity"],
+        measured["compressor_power"],
+        expected["compressor_power"],
+        running_hours,
+    )
+
+
+def analyze_unit(
+    frame: pd.DataFrame,
+    unit: UnitInfo,
+    baseline: Baseline | None = None,
+    since=None,
+    until=None,
+    tariff_per_kWh: float = DEFAULT_TARIFF_PER_KWH,
+) -> UnitAnalysis:
+    """Findings and events of one unit over ``[since, until)``.
+
+    Parameters
+    ----------
+    frame : the unit's readings (SI), wide, indexed by UTC time.
+    unit : its description.
+    baseline : fault-free reference models; None for the day-one rules.
+    since, until : the period (defaults: the frame's extent).
+    tariff_per_kWh : energy price for the cost figures [currency/kWh].
+    """
+    prepared = prepare(frame, unit, since, until)
+    hourly, impacts = _residuals(prepared, unit, baseline)
+    device_class = "valve" if unit.holds_superheat else "orifice"
+    faulty = quality.faulty_points(prepared.quality)
+    diagnosis = diagnose.diagnose(
+        hourly, device_class, faulty, impacts, tariff_per_kWh, residual_drift=baseline is not None
+    )
+    findings = prepared.quality
+    findings.merge(diagnosis)
+    findings.steady_samples = hourly.steady_samples
+    found_events = events.derive_events(unit.key, findings)
+    stats = {
+        "minutes": len(prepared.grid),
+        "running_minutes": int(prepared.running.sum()),
+        "steady_minutes": int(prepared.steady.sum()),
+        "hours_judged": int(diagnosis.status.notna().any(axis=1).sum()),
+        "hours_extrapolated": int((hourly.extrapolated > 0.5).sum()),
+        "mode": "baseline" if baseline is not None else "day-one rules",
+    }
+    return UnitAnalysis(unit.key, findings, found_events, stats)

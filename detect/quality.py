@@ -1,0 +1,334 @@
+"""Data quality: sensor faults found in the readings themselves (``sensor_fault`` findings).
+
+Kinds (design.md): ``out_of_range``, ``stuck``, ``drift``, ``implausible``, ``offline``. Each check
+runs per UTC hour and per point; its finding key is ``sensor_fault:<point>:<kind>``. A sensor
+finding suppresses, for that hour, every diagnosis feature that depends on the point (see
+:data:`FEATURE_POINTS`), so a broken sensor never turns into a refrigerant fault.
+
+Checks and thresholds (ours unless marked; chosen to sit well above the accuracy of field
+sensors: about 0.2-0.5 K for temperatures, 1 % of span for pressure transducers):
+
+* **out_of_range**: a value outside the in-service range of its role (:data:`SERVICE_RANGES`;
+  pressures also above the refrigerant's critical pressure, compressor power and current above
+  ``POWER_PER_CAPACITY_MAX`` / ``CURRENT_PER_CAPACITY_MAX`` times the nominal capacity). Such
+  samples are always blanked before analysis; the finding needs at least ``OUT_OF_RANGE_SHARE``
+  of an hour's samples, so a lone garbage value is only blanked.
+* **stuck**: exactly the same value for ``STUCK_MINUTES`` while the compressor changed state or
+  ran (refrigerant-side, supply and condenser-leaving points must move then), or for
+  ``STUCK_AMBIENT_MINUTES`` for ambient and zone points.
+* **drift**: at standstill (compressor off for 30 min, :mod:`rimewatch.physics.standstill`) the
+  circuit equalises at the saturation pressure of the coldest surroundings, where liquid
+  collects. A pressure whose saturation temperature is ``DRIFT_LIMIT_K`` away from that of the
+  other pressure and from the coldest air temperature has drifted. This needs a unit whose
+  pressures equalise at standstill (fixed orifice, bleed-port or open-at-stop valves). A residual
+  model can also show drift (one feature off alone, see :mod:`rimewatch.detect.diagnose`).
+* **implausible**: in steady running, superheat below ``-IMPLAUSIBLE_K`` (suction colder than its
+  own dew point), liquid warmer than its bubble point by more than ``IMPLAUSIBLE_K``, or discharge
+  colder than the condensing dew point: physically impossible in a sound circuit, so a sensor (or
+  its mounting) is wrong. Hourly medians over at least ``MIN_IMPLAUSIBLE_SAMPLES`` samples.
+* **offline**: a point without any sample for a whole hour while the others report; the whole
+  unit silent is ``all:offline``. Short outages are gaps, not faults: the event policy asks
+  offline findings to last ``OFFLINE_MIN_HOURS`` (see :mod:`rimewatch.detect.events`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
+from rimewatch.detect.unit import UnitInfo
+from rimewatch.physics import fast
+from rimewatch.physics.refrigerant import get_refrigerant
+
+#: In-service plausible range of each role [SI]; wider ranges (ingest) only catch garbage.
+SERVICE_RANGES = {
+    "suction_pressure": (5e3, None),
+    "discharge_pressure": (5e3, None),
+    "liquid_pressure": (5e3, None),
+    "suction_temp": (213.15, 373.15),
+    "liquid_temp": (233.15, 363.15),
+    "discharge_temp": (233.15, 453.15),
+    "evaporator_outlet_temp": (213.15, 373.15),
+    "outdoor_air_temp": (223.15, 333.15),
+    "condenser_leaving_air_temp": (223.15, 353.15),
+    "return_air_temp": (233.15, 333.15),
+    "supply_air_temp": (233.15, 333.15),
+    "box_temp": (223.15, 323.15),
+    "return_air_humidity": (0.0, 1.0),
+    "compressor_power": (0.0, None),
+    "compressor_current": (0.0, None),
+    "compressor_status": (0.0, 1.0),
+}
+REFRIGERANT_POINTS = (
+    "suction_pressure",
+    "discharge_pressure",
+    "liquid_pressure",
+    "suction_temp",
+    "liquid_temp",
+    "discharge_temp",
+    "supply_air_temp",
+    "condenser_leaving_air_temp",
+)
+AMBIENT_POINTS = ("outdoor_air_temp", "return_air_temp", "return_air_humidity", "box_temp")
+RUNNING_ONLY_POINTS = ("compressor_power", "compressor_current")
+
+#: compressor power and current above these multiples of the nominal cooling capacity [W/W],
+#: [A/W] are not credible (a COP of 1/3; 20 A per kW)
+POWER_PER_CAPACITY_MAX = 3.0
+CURRENT_PER_CAPACITY_MAX = 0.02
+OUT_OF_RANGE_SHARE = 0.1
+STUCK_MINUTES = 120
+STUCK_AMBIENT_MINUTES = 720
+DRIFT_LIMIT_K = 2.0
+DRIFT_AGREE_K = 1.0
+MIN_STANDSTILL_SAMPLES = 20
+IMPLAUSIBLE_K = 2.0
+MIN_IMPLAUSIBLE_SAMPLES = 20
+OFFLINE_MIN_HOURS = 6
+
+#: Diagnosis feature -> points it is computed from (drivers of the reference models excluded).
+FEATURE_POINTS = {
+    "t_evap": ("suction_pressure",),
+    "t_cond": ("discharge_pressure", "outdoor_air_temp"),
+    "superheat": ("suction_pressure", "suction_temp"),
+    "subcooling": ("discharge_pressure", "liquid_pressure", "liquid_temp"),
+    "discharge_temp": ("discharge_temp",),
+    "liquid_approach": ("liquid_temp", "outdoor_air_temp"),
+    "evaporator_air_drop": ("return_air_temp", "box_temp", "supply_air_temp"),
+    "condenser_air_rise": ("condenser_leaving_air_temp", "outdoor_air_temp"),
+    "volumetric_efficiency_ratio": (
+        "compressor_power", "suction_pressure", "discharge_pressure", "suction_temp",
+        "discharge_temp",
+    ),
+    "condenser_airflow_ratio": (
+        "condenser_leaving_air_temp", "outdoor_air_temp", "discharge_temp", "liquid_temp",
+    ),
+    "evaporator_airflow_ratio": ("supply_air_temp", "return_air_temp", "return_air_humidity"),
+    "liquid_line_drop": ("discharge_pressure", "liquid_pressure"),
+}  # fmt: skip
+#: Points every reference model depends on: a fault there stops the whole diagnosis that hour.
+DRIVER_POINTS = (
+    "outdoor_air_temp",
+    "return_air_temp",
+    "return_air_humidity",
+    "box_temp",
+    "suction_pressure",
+)
+
+
+def service_ranges(unit: UnitInfo) -> dict[str, tuple[float, float]]:
+    """:data:`SERVICE_RANGES` with the open upper pressure limits set to the critical pressure."""
+    p_crit = get_refrigerant(unit.refrigerant).critical_pressure
+    capacity = unit.nominal_capacity_W
+    upper = {
+        "compressor_power": POWER_PER_CAPACITY_MAX * capacity if capacity else 1e7,
+        "compressor_current": CURRENT_PER_CAPACITY_MAX * capacity if capacity else 1e4,
+    }
+    out = {}
+    for role, (low, high) in SERVICE_RANGES.items():
+        if high is None:
+            high = 1.05 * p_crit if role.endswith("pressure") else upper[role]
+        out[role] = (low, high)
+    return out
+
+
+def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """(grid with implausible values set to NaN, boolean frame of the blanked samples)."""
+    ranges = service_ranges(unit)
+    bad = pd.DataFrame(False, index=grid.index, columns=grid.columns)
+    for role in grid.columns:
+        if role in ranges:
+            low, high = ranges[role]
+            values = grid[role]
+            bad[role] = values.notna() & ~values.between(low, high)
+    return grid.mask(bad), bad
+
+
+def _hours(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    return index.floor("1h")
+
+
+def check_quality(
+    grid: pd.DataFrame,
+    blanked: pd.DataFrame,
+    running_mask: pd.Series,
+    standstill_mask: pd.Series,
+    unit: UnitInfo,
+    hours: pd.DatetimeIndex,
+    features: pd.DataFrame | None = None,
+    steady_mask: pd.Series | None = None,
+) -> HourlyFindings:
+    """Every sensor check over one unit's one-minute grid.
+
+    Parameters
+    ----------
+    grid : readings on the one-minute grid, out-of-range values already blanked.
+    blanked : which samples :func:`blank_out_of_range` removed.
+    running_mask, standstill_mask : from :mod:`rimewatch.detect.steady`.
+    hours : the UTC hours to report on.
+    features, steady_mask : per-minute features of running samples and their steadiness (for the
+        implausible-combination checks); optional.
+    """
+    out = HourlyFindings.empty(hours)
+    hour_of = _hours(grid.index)
+    points = [c for c in grid.columns if c in SERVICE_RANGES and c != "compressor_status"]
+    present = grid[points].notna() | blanked[points]
+    counts = present.groupby(hour_of).sum().reindex(hours, fill_value=0)
+    any_data = counts.sum(axis=1) > 0
+
+    # offline: the whole unit, then single points while others report
+    out.set(
+        finding_key("sensor_fault", "all:offline"),
+        hours,
+        {h: Finding(1.0, 1.0, "no readings at all this hour") for h in hours[~any_data.to_numpy()]},
+    )
+    for role in points:
+        silent = (counts[role] == 0) & any_data
+        out.set(
+            finding_key("sensor_fault", f"{role}:offline"),
+            hours[any_data.to_numpy()],
+            {h: Finding(1.0, 1.0, f"{role}: no readings this hour") for h in hours[silent]},
+        )
+
+    # out of range
+    bad_counts = blanked[points].groupby(hour_of).sum().reindex(hours, fill_value=0)
+    for role in points:
+        share = bad_counts[role] / counts[role].where(counts[role] > 0)
+        found = share[share >= OUT_OF_RANGE_SHARE]
+        out.set(
+            finding_key("sensor_fault", f"{role}:out_of_range"),
+            hours[(counts[role] > 0).to_numpy()],
+            {
+                h: Finding(
+                    float(min(1.0, s)), 1.0, f"{role}: {s:.0%} of the hour's values out of range"
+                )
+                for h, s in found.items()
+            },
+        )
+
+    _check_stuck(out, grid, running_mask, points, hours, hour_of)
+    _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of)
+    if features is not None and steady_mask is not None:
+        _check_implausible(out, features, steady_mask, hours)
+    return out
+
+
+def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
+    status = grid.get("compressor_status")
+    for role in points:
+        values = grid[role]
+        if role in RUNNING_ONLY_POINTS:
+            values = values.where(running_mask)
+        window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
+        min_present = window // 2
+        rolling = values.rolling(window, min_periods=min_present)
+        flat = (rolling.max() - rolling.min()) == 0
+        if role not in AMBIENT_POINTS and status is not None:
+            changes = status.diff().abs().rolling(window, min_periods=1).sum()
+            ran = running_mask.astype(float).rolling(window, min_periods=1).sum()
+            flat &= (changes > 0) | (ran >= min_present)
+        checked = values.notna().groupby(hour_of).sum().reindex(hours, fill_value=0) > 0
+        stuck_hours = flat.groupby(hour_of).any().reindex(hours, fill_value=False)
+        found = {
+            h: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
+            for h in hours[(stuck_hours & checked).to_numpy()]
+        }
+        out.set(finding_key("sensor_fault", f"{role}:stuck"), hours[checked.to_numpy()], found)
+
+
+def _coldest_surroundings(grid: pd.DataFrame) -> pd.Series | None:
+    temps = [grid[c] for c in ("outdoor_air_temp", "return_air_temp", "box_temp") if c in grid]
+    if not temps:
+        return None
+    return pd.concat(temps, axis=1).min(axis=1, skipna=True)
+
+
+def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of) -> None:
+    pressures = [c for c in ("suction_pressure", "discharge_pressure") if c in grid]
+    coldest = _coldest_surroundings(grid)
+    if not pressures or coldest is None:
+        return
+    still = standstill_mask.to_numpy(dtype=bool)
+    if not still.any():
+        for role in pressures:
+            out.set(finding_key("sensor_fault", f"{role}:drift"), [], {})
+        return
+    sub = grid.loc[still, pressures].assign(coldest=coldest[still])
+    medians = sub.groupby(hour_of[still]).median()
+    sizes = sub.groupby(hour_of[still]).size()
+    medians = medians[sizes >= MIN_STANDSTILL_SAMPLES].dropna(subset=["coldest"])
+    saturation = {
+        role: pd.Series(
+            fast.saturation_temperature(unit.refrigerant, medians[role].to_numpy(), "dew"),
+            index=medians.index,
+        )
+        for role in pressures
+    }
+    for role in pressures:
+        others = [saturation[o] for o in pressures if o != role]
+        off_air = saturation[role] - medians["coldest"]
+        found = {}
+        for hour, deviation in off_air.dropna().items():
+            if abs(deviation) <= DRIFT_LIMIT_K:
+                continue
+            if others:
+                other = others[0].get(hour, np.nan)
+                if not np.isfinite(other):
+                    continue
+                if abs(saturation[role][hour] - other) <= DRIFT_LIMIT_K:
+                    continue  # the two pressures agree: not this sensor
+                if abs(other - medians["coldest"][hour]) > DRIFT_AGREE_K:
+                    continue  # neither pressure fits the air: no verdict about this one
+                confidence = 0.9
+            else:
+                confidence = 0.6
+            found[hour] = Finding(
+                float(min(1.0, abs(deviation) / 10.0)),
+                confidence,
+                f"{role} at standstill: saturation {deviation:+.1f} K from the coldest air "
+                "temperature (should be equalised)",
+            )
+        out.set(finding_key("sensor_fault", f"{role}:drift"), off_air.dropna().index, found)
+
+
+IMPLAUSIBLE_CHECKS = (
+    # (feature, points named, lower limit [K], what it means)
+    ("superheat", "suction_pressure/suction_temp", "suction colder than its dew point"),
+    ("subcooling", "discharge_pressure/liquid_temp", "liquid warmer than its bubble point"),
+    ("discharge_superheat", "discharge_pressure/discharge_temp", "discharge below condensing"),
+)
+
+
+def _check_implausible(out, features, steady_mask, hours) -> None:
+    steady_rows = features.loc[steady_mask.reindex(features.index, fill_value=False).to_numpy()]
+    frame = steady_rows.assign(
+        discharge_superheat=steady_rows["discharge_temp"] - steady_rows["t_cond"]
+    )
+    hour_of = _hours(frame.index)
+    for feature, points, meaning in IMPLAUSIBLE_CHECKS:
+        values = frame[feature].dropna()
+        groups = values.groupby(hour_of[frame[feature].notna().to_numpy()])
+        medians, sizes = groups.median(), groups.size()
+        medians = medians[sizes >= MIN_IMPLAUSIBLE_SAMPLES]
+        found = {
+            h: Finding(
+                float(min(1.0, -m / 10.0)),
+                0.8,
+                f"{meaning}: median {feature} {m:+.1f} K in steady running",
+            )
+            for h, m in medians[medians < -IMPLAUSIBLE_K].items()
+        }
+        out.set(finding_key("sensor_fault", f"{points}:implausible"), medians.index, found)
+
+
+def faulty_points(findings: HourlyFindings) -> dict[pd.Timestamp, set[str]]:
+    """Hour -> points under a sensor finding that hour (``"all"`` for a silent unit)."""
+    out: dict[pd.Timestamp, set[str]] = {}
+    for key, hour in findings.found:
+        code, _, detail = key.partition(":")
+        if code != "sensor_fault":
+            continue
+        point_part = detail.rsplit(":", 1)[0]
+        out.setdefault(hour, set()).update(point_part.split("/"))
+    return out

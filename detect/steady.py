@@ -1,0 +1,121 @@
+"""Alignment on a one-minute grid, start-up exclusion and a steady-state detector.
+
+Only steady samples feed diagnosis: right after a compressor start the suction and discharge
+temperatures are still moving and every feature looks faulty for a few minutes.
+
+* **Alignment.** Readings arrive at their own instants. :func:`align` averages each point over
+  one-minute bins (label = bin start) and holds a value for at most ``HOLD_MINUTES`` bins when a
+  point reports less often; anything older is a gap (NaN).
+* **Start-up exclusion.** A sample counts as running only after the compressor has been on for
+  ``STARTUP_EXCLUSION_S`` (10 minutes; the running criterion of
+  :mod:`rimewatch.physics.standstill`, whose own docstring gives the reason: small air-cooled
+  units settle within 5 to 10 minutes of a start).
+* **Steady state.** A moving window of ``WINDOW_MINUTES`` minutes; a running sample is steady when
+  the standard deviation of each key signal over the window ending at it stays below its limit in
+  ``STEADY_LIMITS_K`` and the window holds at least ``MIN_WINDOW_SAMPLES`` running samples. The
+  moving-window standard deviation is the usual steady-state test of the air-conditioner fault
+  detection literature (used beside the Rossi and Braun (1997) classifier); the limits are ours,
+  set a few times above the noise of good field sensors (0.1 to 0.2 K) and well below the swings
+  of a start-up or a valve hunting.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.physics import standstill
+
+GRID = "1min"
+HOLD_MINUTES = 2
+STARTUP_EXCLUSION_S = 600.0
+WINDOW_MINUTES = 10
+MIN_WINDOW_SAMPLES = 8
+#: signal -> largest standard deviation over the window [K] for a steady sample
+STEADY_LIMITS_K = {
+    "t_evap": 0.5,
+    "t_cond": 0.6,
+    "suction_temp": 0.8,
+    "liquid_temp": 0.6,
+    "discharge_temp": 1.5,
+    "supply_air_temp": 0.6,
+}
+
+
+def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame:
+    """Put a unit's readings on a one-minute UTC grid.
+
+    Parameters
+    ----------
+    frame : DataFrame indexed by tz-aware time, one column per point role (SI), NaN where a
+        point has no sample (the shape :func:`rimewatch.store.read_unit_frame` returns).
+    hold_minutes : a bin without a sample takes the last bin's value for at most this many bins.
+
+    Returns
+    -------
+    DataFrame on a regular one-minute index (bin start), same columns.
+    """
+    if not isinstance(frame.index, pd.DatetimeIndex) or frame.index.tz is None:
+        raise ValueError("align needs a frame indexed by timezone-aware time")
+    if frame.empty:
+        return frame.astype(float)
+    frame = frame.sort_index().astype(float)
+    grid = frame.resample(GRID).mean()
+    if hold_minutes > 0:
+        grid = grid.ffill(limit=hold_minutes)
+    if "compressor_status" in grid:
+        grid["compressor_status"] = grid["compressor_status"].round()
+    return grid
+
+
+def running(grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S) -> pd.Series:
+    """True where the compressor has run for at least ``startup_exclusion_s`` [s]."""
+    state = standstill.operating_state(grid, min_running_s=startup_exclusion_s)
+    return pd.Series(state.to_numpy() == standstill.RUNNING, index=grid.index, name="running")
+
+
+def standstill_samples(grid: pd.DataFrame) -> pd.Series:
+    """True where the compressor has been off long enough for the pressures to equalise."""
+    state = standstill.operating_state(grid)
+    return pd.Series(state.to_numpy() == standstill.STANDSTILL, index=grid.index)
+
+
+def steady(
+    signals: pd.DataFrame,
+    running_mask: pd.Series,
+    limits: dict[str, float] | None = None,
+    window_minutes: int = WINDOW_MINUTES,
+    min_samples: int = MIN_WINDOW_SAMPLES,
+) -> pd.Series:
+    """Steady samples: running, and every key signal quiet over the window ending at the sample.
+
+    Parameters
+    ----------
+    signals : one-minute frame with some of the columns of ``limits`` ([K]); missing ones are
+        not judged.
+    running_mask : :func:`running` (start-up excluded).
+    limits : signal -> largest moving-window standard deviation [K]; default ``STEADY_LIMITS_K``.
+    """
+    limits = STEADY_LIMITS_K if limits is None else limits
+    run = running_mask.to_numpy(dtype=bool)
+    ok = run.copy()
+    counts = running_mask.astype(float).rolling(window_minutes, min_periods=1).sum().to_numpy()
+    ok &= counts >= min_samples
+    for name, limit in limits.items():
+        if name not in signals:
+            continue
+        values = signals[name].where(running_mask)
+        spread = values.rolling(window_minutes, min_periods=min_samples).std().to_numpy()
+        present = values.notna().to_numpy()
+        ok &= present & (spread <= limit)
+    return pd.Series(ok, index=signals.index, name="steady")
+
+
+def hour_bins(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    """The UTC hour each sample belongs to (its floor)."""
+    return index.floor("1h")
+
+
+def steady_share(mask: pd.Series) -> float:
+    """Share of running samples that are steady (a diagnostic for reports and tests)."""
+    return float(np.mean(mask.to_numpy())) if len(mask) else 0.0
