@@ -25,6 +25,9 @@ COMMANDS: dict[str, str] = {
     "simulate": "rimewatch.commands.simulate:simulate",
     "quarantine": "rimewatch.commands.quarantine:quarantine",
     "commission": "rimewatch.commands.commission:commission",
+    "analyze": "rimewatch.commands.analyze:analyze",
+    "baseline": "rimewatch.commands.baseline:baseline",
+    "faults": "rimewatch.commands.faults:faults",
 }
 
 
