@@ -37,6 +37,7 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "h3": ("J/kg", "enthalpy of the liquid before the expansion device"),
     "h4": ("J/kg", "enthalpy at the evaporator inlet (equal to h3: isenthalpic expansion)"),
     "s1": ("J/(kg K)", "entropy at compressor suction"),
+    "rho1": ("kg/m^3", "density at compressor suction"),
     "quality_evaporator_inlet": ("-", "vapour mass fraction entering the evaporator"),
     "eta_isentropic": ("-", "compressor isentropic efficiency (h2s - h1) / (h2 - h1)"),
     "refrigerating_effect": ("J/kg", "h1 - h4, cooling per kilogram of refrigerant"),
@@ -121,6 +122,9 @@ class _ExactLookup:
 
 _LOOKUPS = {"fast": fast.PressureLookup, "exact": _ExactLookup}
 
+#: Samples computed together: blocks this size keep the intermediate arrays in the CPU cache.
+BLOCK_SAMPLES = 32_768
+
 
 def _as_array(values, length: int) -> np.ndarray:
     array = np.asarray(values, dtype=float)
@@ -130,13 +134,13 @@ def _as_array(values, length: int) -> np.ndarray:
 
 
 def _index_and_length(values) -> tuple[pd.Index | None, int]:
-    index, length = None, 1
+    """The first Series' index and the samples' count (1 when every input is a scalar)."""
+    index, lengths = None, [np.size(v) for v in values if v is not None and np.ndim(v) > 0]
     for value in values:
         if isinstance(value, pd.Series):
-            index = value.index if index is None else index
-        if value is not None and np.ndim(value) > 0:
-            length = max(length, np.size(value))
-    return index, length
+            index = value.index
+            break
+    return index, max(lengths) if lengths else 1
 
 
 def cycle_states(
@@ -194,34 +198,49 @@ def cycle_states(
     fluid = get_refrigerant(refrigerant)
     if method not in _LOOKUPS:
         raise ValueError(f"method must be 'fast' or 'exact', not {method!r}")
-    lookup = _LOOKUPS[method]
-    inputs = (
-        suction_pressure,
-        discharge_pressure,
-        suction_temp,
-        liquid_temp,
-        discharge_temp,
-        liquid_pressure,
-    )
-    index, n = _index_and_length(inputs)
-    p_suc = _as_array(suction_pressure, n)
-    p_dis = _as_array(discharge_pressure, n)
+    inputs = {
+        "p_suc": suction_pressure,
+        "p_dis": discharge_pressure,
+        "t_suc": suction_temp,
+        "t_liq": liquid_temp,
+        "t_dis": discharge_temp,
+        "p_liq": liquid_pressure,
+    }
+    index, n = _index_and_length(inputs.values())
+    arrays = {name: _as_array(v, n) for name, v in inputs.items() if v is not None}
+    given = frozenset(arrays)
+    columns = {name: np.empty(n) for name in COLUMNS if name != "flags"}
+    flags = np.zeros(n, dtype=np.int64)
+    for start in range(0, n, BLOCK_SAMPLES):
+        block = slice(start, min(start + BLOCK_SAMPLES, n))
+        results, flags[block] = _cycle_block(
+            fluid, _LOOKUPS[method], {k: v[block] for k, v in arrays.items()}, given
+        )
+        for name, values in results.items():
+            columns[name][block] = values
+    frame = pd.DataFrame(columns, index=index, copy=False)
+    frame["flags"] = _flag_text(flags)
+    return frame
+
+
+def _cycle_block(fluid, lookup, arrays: dict[str, np.ndarray], given: frozenset[str]):
+    """The cycle of one block of samples: the columns of :data:`COLUMNS` and the flag bits."""
+    n = arrays["p_suc"].size
+    p_suc, p_dis = arrays["p_suc"], arrays["p_dis"]
     nan = np.full(n, np.nan)
-    t_suc = nan if suction_temp is None else _as_array(suction_temp, n)
-    t_liq = nan if liquid_temp is None else _as_array(liquid_temp, n)
-    t_dis = nan if discharge_temp is None else _as_array(discharge_temp, n)
-    p_liq = p_dis if liquid_pressure is None else _as_array(liquid_pressure, n)
+    t_suc, t_liq, t_dis = (arrays.get(k, nan) for k in ("t_suc", "t_liq", "t_dis"))
+    p_liq = arrays.get("p_liq", p_dis)
 
     flags = np.zeros(n, dtype=np.int64)
-    for given, values, bit in (
-        (True, p_suc, MISSING_SUCTION_PRESSURE),
-        (True, p_dis, MISSING_DISCHARGE_PRESSURE),
-        (suction_temp is not None, t_suc, MISSING_SUCTION_TEMP),
-        (liquid_temp is not None, t_liq, MISSING_LIQUID_TEMP),
-        (discharge_temp is not None, t_dis, MISSING_DISCHARGE_TEMP),
+    for name, bit in (
+        ("p_suc", MISSING_SUCTION_PRESSURE),
+        ("p_dis", MISSING_DISCHARGE_PRESSURE),
+        ("t_suc", MISSING_SUCTION_TEMP),
+        ("t_liq", MISSING_LIQUID_TEMP),
+        ("t_dis", MISSING_DISCHARGE_TEMP),
     ):
-        if given:
-            flags[~np.isfinite(values)] |= bit
+        if name in given:
+            flags[~np.isfinite(arrays[name])] |= bit
     for values in (p_suc, p_dis, t_suc, t_liq, t_dis, p_liq):
         with np.errstate(invalid="ignore"):
             not_physical = values <= 0
@@ -236,7 +255,7 @@ def cycle_states(
 
     suction = lookup(fluid, p_suc)
     discharge = lookup(fluid, p_dis)
-    liquid_line = discharge if liquid_pressure is None else lookup(fluid, p_liq)
+    liquid_line = lookup(fluid, p_liq) if "p_liq" in given else discharge
     t_evap = suction.saturation("T_dew")
     t_cond = discharge.saturation("T_dew")
     t_cond_bubble = liquid_line.saturation("T_bubble")
@@ -255,9 +274,10 @@ def cycle_states(
         flags[discharge_superheat < 0] |= DISCHARGE_BELOW_SATURATION
 
     vapour_suction = ~(superheat < 0)
-    suction_state = suction.single_phase(t_suc, "h", "s")
+    suction_state = suction.single_phase(t_suc, "h", "s", "rho")
     h1 = np.where(vapour_suction, suction_state["h"], np.nan)
     s1 = np.where(vapour_suction, suction_state["s"], np.nan)
+    rho1 = np.where(vapour_suction, suction_state["rho"], np.nan)
     h2 = np.where(discharge_superheat < 0, np.nan, discharge.single_phase(t_dis, "h")["h"])
     h2s = discharge.isentropic_enthalpy(s1)
     h3 = liquid_line.single_phase(t_liq, "h")["h"]
@@ -281,35 +301,31 @@ def cycle_states(
         cop_carnot = np.where(
             (t_cond > t_evap) & ~reversed_pressures, t_evap / (t_cond - t_evap), np.nan
         )
-        frame = pd.DataFrame(
-            {
-                "t_evap": t_evap,
-                "t_cond": t_cond,
-                "t_cond_bubble": t_cond_bubble,
-                "superheat": superheat,
-                "subcooling": subcooling,
-                "discharge_superheat": discharge_superheat,
-                "h1": h1,
-                "h2": h2,
-                "h2s": h2s,
-                "h3": h3,
-                "h4": h4,
-                "s1": s1,
-                "quality_evaporator_inlet": (h4 - h_bubble) / (h_dew - h_bubble),
-                "eta_isentropic": eta_isentropic,
-                "refrigerating_effect": refrigerating_effect,
-                "compression_work": compression_work,
-                "heat_rejection_effect": np.where(reversed_pressures, np.nan, h2 - h3),
-                "cop": cop,
-                "cop_carnot": cop_carnot,
-                "second_law_efficiency": cop / cop_carnot,
-                "pressure_ratio": p_dis / p_suc,
-            },
-            index=index,
-            copy=False,
-        )
-    frame["flags"] = _flag_text(flags)
-    return frame
+        columns = {
+            "t_evap": t_evap,
+            "t_cond": t_cond,
+            "t_cond_bubble": t_cond_bubble,
+            "superheat": superheat,
+            "subcooling": subcooling,
+            "discharge_superheat": discharge_superheat,
+            "h1": h1,
+            "h2": h2,
+            "h2s": h2s,
+            "h3": h3,
+            "h4": h4,
+            "s1": s1,
+            "rho1": rho1,
+            "quality_evaporator_inlet": (h4 - h_bubble) / (h_dew - h_bubble),
+            "eta_isentropic": eta_isentropic,
+            "refrigerating_effect": refrigerating_effect,
+            "compression_work": compression_work,
+            "heat_rejection_effect": np.where(reversed_pressures, np.nan, h2 - h3),
+            "cop": cop,
+            "cop_carnot": cop_carnot,
+            "second_law_efficiency": cop / cop_carnot,
+            "pressure_ratio": p_dis / p_suc,
+        }
+    return columns, flags
 
 
 def _flag_text(flags: np.ndarray) -> pd.Categorical:
