@@ -74,7 +74,13 @@ CONSISTENT_FRACTION = 0.9
 TEMPERATURE_RANGE_K = (200.0, 450.0)
 PRESSURE_RANGE_PA = (5.0e3, 15.0e6)
 
-# Refrigerant identification from standstill data: |T_bubble(p_eq) - T_surroundings| [K].
+# Pipes at standstill: within STANDSTILL_PIPE_K [K] of the surrounding air. The discharge line
+# may stay up to DISCHARGE_WARM_K above it: the compressor's mass cools over the best part of an
+# hour after a stop, and a crankcase heater keeps it warm for good (common practice, from memory).
+STANDSTILL_PIPE_K = 5.0
+DISCHARGE_WARM_K = 15.0
+
+# Refrigerant identification from standstill data: |T_bubble(p_eq) - T_coldest surroundings| [K].
 REFRIGERANT_FIT_K = 2.0
 REFRIGERANT_TIE_K = 1.0
 REFRIGERANT_FIT_FRACTION = 0.8
@@ -462,12 +468,15 @@ def _standstill_pressures_equal(ev, h, s, roles):
 
 
 def _standstill_temperature(role):
+    warm_side = DISCHARGE_WARM_K if role == "discharge_temp" else STANDSTILL_PIPE_K
+
     def check(ev, h, s, roles):
         air = [r for r in roles if r in AIR_TEMPERATURE_ROLES]
         reference = air or [r for r in roles if r in PIPE_TEMPERATURE_ROLES and r != role]
         others = np.vstack([ev.value(s, h, r) for r in reference])
         own = ev.value(s, h, role)
-        low, high = others.min(axis=0) - 5.0, others.max(axis=0) + 5.0
+        low = others.min(axis=0) - STANDSTILL_PIPE_K
+        high = others.max(axis=0) + warm_side
         return (own >= low) & (own <= high), own - np.median(others, axis=0)
 
     return check
@@ -554,7 +563,12 @@ def _constraints_for(roles: list[str], air_cooled: bool) -> list[tuple[Constrain
         out.append((constraint, _standstill_pressures_equal))
     if len(temperatures) >= 3:
         for role in pipes:
-            text = f"{role} at standstill within 5 K of the surroundings"
+            text = (
+                f"{role} at standstill within {STANDSTILL_PIPE_K:.0f} K of the surroundings"
+                if role != "discharge_temp"
+                else f"{role} at standstill from {STANDSTILL_PIPE_K:.0f} K below to "
+                f"{DISCHARGE_WARM_K:.0f} K above the surroundings (the compressor cools slowly)"
+            )
             needs = (role, *(t for t in temperatures if t != role))
             constraint = Constraint(
                 f"standstill_temperature[{role}]", text, needs, "standstill", 2.0, "K"
@@ -684,7 +698,8 @@ class Assignment:
         for sensor in self.roles:
             role = best.hypothesis.role_of(sensor)
             fix = best.hypothesis.fix(sensor)
-            relevant = [r for r in best.results if role in r.constraint.roles]
+            # a check without a single usable sample is no evidence either way
+            relevant = [r for r in best.results if role in r.constraint.roles and r.count]
             evidence = [
                 f"{r.constraint.description}: {r.fraction:.0%} of {r.count} samples, median "
                 f"{_format(r.residual, r.constraint.residual_unit)}"
@@ -924,9 +939,12 @@ def condenser_approach(refrigerant, discharge_pressure, outdoor_air_temperature)
 class RefrigerantFit:
     """How well one refrigerant explains the data.
 
-    ``residual`` [K] is the median standstill saturation residual over ``count`` standstill
-    samples, ``fraction`` the share of them within REFRIGERANT_FIT_K; ``approach`` [K] the median
-    condenser approach while running (NaN when not available).
+    ``residual`` [K] is the median standstill saturation residual (bubble point at the equalised
+    pressure minus the coldest surroundings) over ``count`` standstill samples; ``fraction`` the
+    share of them whose bubble point lies within REFRIGERANT_FIT_K of the span of surrounding
+    temperatures (while liquid migrates to the coldest place, which takes hours, the pressure
+    sits between the saturation pressures of the coldest and the warmest place); ``approach``
+    [K] the median condenser approach while running (NaN when not available).
     """
 
     designation: str
@@ -964,25 +982,47 @@ class RefrigerantCheck:
     explanation: str
 
 
-def _standstill_medians(frame, index):
+def _within(values: np.ndarray, limits: tuple[float, float]) -> np.ndarray:
+    """``values`` with everything outside the physical ``limits`` (garbage, dropouts) as NaN."""
+    return np.where((values >= limits[0]) & (values <= limits[1]), values, np.nan)
+
+
+def _standstill_conditions(frame, index):
+    """Equalised pressure [Pa], coldest and warmest surrounding temperature [K] per sample.
+
+    The equalised pressure is the median of the pressure sensors. Liquid collects at the coldest
+    place of the circuit, whose temperature then sets the pressure (module reference [1]): the
+    coldest surrounding air (outdoor air at the condensing unit, return air or the box at the
+    evaporator); without an air sensor, the coldest pipe other than the discharge line (which the
+    compressor keeps warm). Values outside the physical ranges are ignored.
+    """
     pressures = [r for r in PRESSURE_ROLES if r in frame]
-    temperatures = [r for r in TEMPERATURE_ROLES if r in frame]
-    if not pressures or not temperatures or len(index) == 0:
-        return np.array([]), np.array([])
-    p = frame.loc[index, pressures].to_numpy(dtype=float)
-    t = frame.loc[index, temperatures].to_numpy(dtype=float)
-    keep = np.isfinite(p).any(axis=1) & np.isfinite(t).any(axis=1)
+    air = [r for r in AIR_TEMPERATURE_ROLES if r in frame]
+    pipes = [r for r in PIPE_TEMPERATURE_ROLES if r in frame and r != "discharge_temp"]
+    none = np.array([])
+    if not pressures or not (air or pipes) or len(index) == 0:
+        return none, none, none
+    p = _within(frame.loc[index, pressures].to_numpy(dtype=float), PRESSURE_RANGE_PA)
+    coldest, warmest = np.full(len(index), np.nan), np.full(len(index), np.nan)
+    for roles in (pipes, air):  # air, where present, overrides the pipes
+        if roles:
+            t = _within(frame.loc[index, roles].to_numpy(dtype=float), TEMPERATURE_RANGE_K)
+            t_min, t_max = np.fmin.reduce(t, axis=1), np.fmax.reduce(t, axis=1)
+            coldest = np.where(np.isfinite(t_min), t_min, coldest)
+            warmest = np.where(np.isfinite(t_max), t_max, warmest)
+    keep = np.isfinite(p).any(axis=1) & np.isfinite(coldest)
     if not keep.any():
-        return np.array([]), np.array([])
-    return np.nanmedian(p[keep], axis=1), np.nanmedian(t[keep], axis=1)
+        return none, none, none
+    return np.nanmedian(p[keep], axis=1), coldest[keep], warmest[keep]
 
 
-def _fit(designation, p_eq, t_surround, p_cond, t_outdoor) -> RefrigerantFit:
+def _fit(designation, p_eq, t_coldest, t_warmest, p_cond, t_outdoor) -> RefrigerantFit:
     fluid = props.get_refrigerant(designation)
     residual, fraction, approach = float("nan"), 0.0, float("nan")
     if p_eq.size:
-        r = standstill_saturation_residual(fluid, p_eq, t_surround)
-        fraction = float(np.mean(np.abs(r) <= REFRIGERANT_FIT_K))
+        r = standstill_saturation_residual(fluid, p_eq, t_coldest)
+        span = t_warmest - t_coldest
+        fraction = float(np.mean((r >= -REFRIGERANT_FIT_K) & (r <= span + REFRIGERANT_FIT_K)))
         finite = r[np.isfinite(r)]
         residual = float(np.median(finite)) if finite.size else float("inf")
     if p_cond.size:
@@ -1019,9 +1059,9 @@ def check_refrigerant(
     still = _evenly(
         frame.index[(states == standstill.STANDSTILL).to_numpy()], MAX_STANDSTILL_SAMPLES
     )
-    p_eq, t_surround = _standstill_medians(frame, still)
+    p_eq, t_coldest, t_warmest = _standstill_conditions(frame, still)
     if p_eq.size < MIN_STANDSTILL_SAMPLES:
-        p_eq, t_surround = np.array([]), np.array([])
+        p_eq = t_coldest = t_warmest = np.array([])
     p_cond = t_outdoor = np.array([])
     running = frame.index[(states == standstill.RUNNING).to_numpy()]
     if air_cooled and {"discharge_pressure", "outdoor_air_temp"} <= set(frame.columns):
@@ -1033,7 +1073,7 @@ def check_refrigerant(
     names = list(candidates) if candidates is not None else list(props.SUPPORTED)
     if configured not in names:
         names.append(configured)
-    fits = [_fit(name, p_eq, t_surround, p_cond, t_outdoor) for name in names]
+    fits = [_fit(name, p_eq, t_coldest, t_warmest, p_cond, t_outdoor) for name in names]
 
     def badness(fit: RefrigerantFit) -> tuple:
         standstill_error = abs(fit.residual) if math.isfinite(fit.residual) else float("inf")
@@ -1078,9 +1118,10 @@ def check_refrigerant(
         verdict = "consistent"
         others = [d for d in [best.designation, *equivalents] if d != configured]
         text = (
-            f"At standstill the equalised pressure matches {configured} within "
-            f"{_format(own.residual, 'K')} (median over {own.count} samples, "
-            f"{own.fraction:.0%} within {REFRIGERANT_FIT_K:.0f} K)."
+            f"At standstill the equalised pressure matches {configured}: its bubble point lies "
+            f"{_format(own.residual, 'K')} from the coldest surroundings (median over "
+            f"{own.count} samples, {own.fraction:.0%} within {REFRIGERANT_FIT_K:.0f} K of the "
+            f"surrounding temperatures)."
         )
         if others:
             text += (
@@ -1091,10 +1132,10 @@ def check_refrigerant(
         verdict = "contradicts"
         suggested = best.designation
         text = (
-            f"At standstill the equalised pressure does not match {configured} (median residual "
-            f"{_format(own.residual, 'K')}, {own.fraction:.0%} of {own.count} samples within "
-            f"{REFRIGERANT_FIT_K:.0f} K); {best.designation} fits (median "
-            f"{_format(best.residual, 'K')})."
+            f"At standstill the equalised pressure does not match {configured} (bubble point "
+            f"{_format(own.residual, 'K')} from the coldest surroundings, {own.fraction:.0%} of "
+            f"{own.count} samples within {REFRIGERANT_FIT_K:.0f} K of the surrounding "
+            f"temperatures); {best.designation} fits (median {_format(best.residual, 'K')})."
         )
         if equivalents:
             text += (
@@ -1170,16 +1211,36 @@ def commission_unit(
     )
     if ref_check.verdict not in ("consistent", "unchecked"):
         # A wrong refrigerant distorts every saturation check, so the wiring found with it is
-        # not trusted: the wiring is searched again for the refrigerants that best fit the
-        # standstill data, as stored and as corrected, and the best-scoring pair wins.
+        # not trusted (it may "fix" an air sensor's unit to fit the wrong saturation curve): the
+        # wiring is searched again for the refrigerants that best fit the standstill data, as
+        # stored and as corrected. A candidate whose refrigerant fits the standstill data under
+        # its own wiring wins unless its wiring is decisively worse; otherwise a candidate must
+        # beat the configured refrigerant's wiring by DECISIVE_MARGIN. First of equals wins.
         as_stored = check_refrigerant(frame, configured, states=states, air_cooled=False)
         candidates = dict.fromkeys(
             f.designation for f in ref_check.ranking[:2] + as_stored.ranking[:2]
         )
-        for candidate in [c for c in candidates if c != configured]:
-            trial = assign_state_points(frame, candidate, **options)
-            if trial.best.rank_key > assignment.best.rank_key + DECISIVE_MARGIN:
-                assignment = trial
+        trials = [
+            assign_state_points(frame, candidate, **options)
+            for candidate in candidates
+            if candidate != configured
+        ]
+        fitting = [
+            trial
+            for trial in trials
+            if check_refrigerant(
+                apply_hypothesis(frame, trial.best.hypothesis, atmospheric_pressure),
+                trial.refrigerant,
+                states=states,
+                candidates=[trial.refrigerant],
+                air_cooled=air_cooled,
+            ).verdict
+            == "consistent"
+        ]
+        best_trial = max(fitting or trials, key=lambda t: t.best.rank_key, default=None)
+        needed = -DECISIVE_MARGIN if fitting else DECISIVE_MARGIN
+        if best_trial and best_trial.best.rank_key > assignment.best.rank_key + needed:
+            assignment = best_trial
         ref_check = check_refrigerant(
             apply_hypothesis(frame, assignment.best.hypothesis, atmospheric_pressure),
             configured,
