@@ -9,6 +9,8 @@ import click
 
 from rimewatch.commands._store_common import db_option, load_site_file, open_database
 
+NO_GO_EXIT_STATUS = 3  # any unit NO-GO; distinct from 1 (bad input) and 2 (usage error)
+
 _VERDICT_STYLE = {
     "consistent": "green",
     "suspect": "yellow",
@@ -198,11 +200,19 @@ def commission(site_file, unit_id, since, csv_file, out_dir, db_url):
     suggested site-file corrections, writes an HTML report per unit, and says GO or NO-GO for
     switching detection on. Needs running data and at least one standstill of 30 minutes.
 
+    Exit status (for scripts and CI pipelines):
+
+    \b
+        0  every unit checked is GO
+        3  at least one unit is NO-GO (the reports say why)
+        1  bad input (site file, CSV, database, --since); 2 usage error
+
     Example:
 
     \b
         rimewatch commission site.yaml --unit rtu-1 --since 2025-06-01
         rimewatch commission site.yaml --csv exports/rtu1-week.csv --out reports/
+        rimewatch commission site.yaml --csv week.csv || echo "keep detection off"
     """
     import pandas as pd
     from rich.console import Console
@@ -244,6 +254,7 @@ def commission(site_file, unit_id, since, csv_file, out_dir, db_url):
         raise click.ClickException(f"cannot create {out}: {exc}") from None
     console = Console()
     generated = datetime.now(UTC)
+    all_go = True
     for unit in units:
         report = build_unit_report(
             _unit_spec(unit), frames[unit.id], config.atmospheric_pressure_Pa
@@ -253,7 +264,10 @@ def commission(site_file, unit_id, since, csv_file, out_dir, db_url):
             for (uid, role), count in unreadable.items()
             if uid == unit.id
         ]
+        all_go = all_go and report.go
         _print_report(console, report)
         target = out / f"commission-{unit.id}.html"
         target.write_text(render_html([report], config.site.name, generated), encoding="utf-8")
         console.print(f"report: {target}")
+    if not all_go:
+        click.get_current_context().exit(NO_GO_EXIT_STATUS)
