@@ -39,7 +39,6 @@ import paho.mqtt.client as mqtt
 from paho.mqtt.enums import CallbackAPIVersion
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
-from paho.mqtt.subscribeoptions import SubscribeOptions
 
 from rimewatch.ingest.payload import PayloadDecoder, Rejection, topic_matches
 from rimewatch.store import QuarantineEntry, write_quarantine, write_readings
@@ -99,6 +98,7 @@ class MqttSettings:
     keepalive_s: int = 30
     session_expiry_s: int = 7 * 24 * 3600
     receive_maximum: int = 1000
+    protocol: str = "5"  # "5", or "3.1.1" for brokers without MQTT 5 (no session expiry there)
     batch_max_messages: int = 500
     flush_interval_s: float = 0.2
     reconnect_min_delay_s: int = 1
@@ -120,6 +120,8 @@ class MqttSettings:
         return settings
 
     def __post_init__(self):
+        if self.protocol not in ("5", "3.1.1"):
+            raise ValueError(f"MQTT protocol {self.protocol!r}: use '5' or '3.1.1'")
         if not 1 <= self.batch_max_messages <= self.receive_maximum:
             raise ValueError(
                 f"batch_max_messages ({self.batch_max_messages}) must be between 1 and "
@@ -194,12 +196,21 @@ class Ingester:
 
     def _make_client(self) -> mqtt.Client:
         s = self.settings
-        client = mqtt.Client(
-            CallbackAPIVersion.VERSION2,
-            client_id=s.client_id,
-            protocol=mqtt.MQTTv5,
-            manual_ack=True,
-        )
+        if s.protocol == "5":
+            client = mqtt.Client(
+                CallbackAPIVersion.VERSION2,
+                client_id=s.client_id,
+                protocol=mqtt.MQTTv5,
+                manual_ack=True,
+            )
+        else:  # MQTT 3.1.1: the persistent session is clean_session=False, kept until it expires
+            client = mqtt.Client(
+                CallbackAPIVersion.VERSION2,
+                client_id=s.client_id,
+                protocol=mqtt.MQTTv311,
+                clean_session=False,
+                manual_ack=True,
+            )
         if s.username is not None:
             client.username_pw_set(s.username, s.password)
         if s.tls:
@@ -214,14 +225,17 @@ class Ingester:
     def start(self) -> None:
         """Connect in the background (retrying with backoff) and start the writer thread."""
         s = self.settings
-        properties = Properties(PacketTypes.CONNECT)
-        properties.SessionExpiryInterval = s.session_expiry_s
-        properties.ReceiveMaximum = s.receive_maximum
         self._writer.start()
         self._decoder.start()
-        self.client.connect_async(
-            s.host, s.port, keepalive=s.keepalive_s, clean_start=False, properties=properties
-        )
+        if s.protocol == "5":
+            properties = Properties(PacketTypes.CONNECT)
+            properties.SessionExpiryInterval = s.session_expiry_s
+            properties.ReceiveMaximum = s.receive_maximum
+            self.client.connect_async(
+                s.host, s.port, keepalive=s.keepalive_s, clean_start=False, properties=properties
+            )
+        else:
+            self.client.connect_async(s.host, s.port, keepalive=s.keepalive_s)
         self.client.loop_start()
 
     def stop(self, timeout_s: float = 30.0) -> bool:
@@ -263,7 +277,7 @@ class Ingester:
             len(self.filters),
         )
         if self.filters:
-            client.subscribe([(f, SubscribeOptions(qos=1)) for f in self.filters])
+            client.subscribe([(f, 1) for f in self.filters])
         self.connected.set()
 
     def _on_subscribe(self, client, userdata, mid, reason_codes, properties) -> None:

@@ -60,9 +60,17 @@ def parse_broker(text: str, tls: bool) -> tuple[str, int]:
 )
 @click.option(
     "--receive-maximum",
-    default=1000,
+    type=click.IntRange(2, 65535),
+    default=None,
+    help="Unacknowledged messages the broker may send at once (default 1000; with MQTT 3.1.1 "
+    "the broker decides: give its max_inflight_messages, default 20 on Mosquitto).",
+)
+@click.option(
+    "--mqtt-version",
+    type=click.Choice(["5", "3.1.1"]),
+    default="5",
     show_default=True,
-    help="Unacknowledged messages the broker may send at once.",
+    help="3.1.1 only for brokers without MQTT 5.",
 )
 @click.option(
     "--flush-interval",
@@ -91,6 +99,7 @@ def listen(
     batch_topics,
     session_expiry,
     receive_maximum,
+    mqtt_version,
     flush_interval,
     max_payload_bytes,
     stats_interval,
@@ -137,10 +146,13 @@ def listen(
             DecodeLimits(max_payload_bytes=max_payload_bytes),
             ZoneInfo(config.site.timezone),
         )
+        if receive_maximum is None:
+            receive_maximum = 1000 if mqtt_version == "5" else 20
         settings = MqttSettings.from_env(
             client_id=client_id or f"rimewatch-{site_name}".replace(" ", "-")[:200],
             session_expiry_s=session_expiry,
             receive_maximum=receive_maximum,
+            protocol=mqtt_version,
             batch_max_messages=max(1, receive_maximum // 2),
             flush_interval_s=flush_interval,
         )

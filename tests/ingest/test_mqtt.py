@@ -512,3 +512,31 @@ def test_tls_and_credentials_from_environment(tls_broker, tmp_path, caplog):
     finally:
         ingester.stop()
     engine.dispose()
+
+
+@pytest.mark.mqtt
+def test_mqtt_311_persistent_session_keeps_messages_while_away(mosquitto, tmp_path):
+    """Brokers without MQTT 5: clean_session=False and a fixed client id hold the queue."""
+    prefix = fresh_prefix()
+    url = f"sqlite:///{tmp_path / 'plant.db'}"
+    settings = MqttSettings(
+        host=mosquitto.host,
+        port=mosquitto.port,
+        client_id=f"ingest-{prefix}",
+        protocol="3.1.1",
+        receive_maximum=20,  # Mosquitto's default max_inflight_messages for 3.1.1 clients
+        batch_max_messages=10,
+    )
+    ingester, engine = ingester_for(url, prefix, settings)
+    ingester.start()
+    assert ingester.subscribed.wait(10)
+    assert ingester.stop()
+    publish(mosquitto, numbered(prefix, range(200)))  # while it is away
+    ingester, _ = ingester_for(url, prefix, settings)
+    ingester.start()
+    try:
+        assert wait_until(lambda: ingester.stats.readings_stored == 200)
+    finally:
+        assert ingester.stop()
+    assert stored_numbers(tmp_path / "plant.db") == list(range(200))
+    engine.dispose()
