@@ -42,6 +42,8 @@ TYPICAL_WINDOW_SHARE = 0.2
 # commissioning looks at the first days of data, before any fault starts (at 30 % of the period)
 COMMISSION_SHARE = 0.25
 COMMISSION_MAX_DAYS = 3.0
+# detection's fault-free baseline: the first quarter of the period (faults start at 30 %)
+BASELINE_SHARE = 0.25
 
 
 @dataclass(frozen=True)
@@ -131,6 +133,7 @@ class UnitOutcome:
     daily: pd.DataFrame | None = None
     diagram: Path | None = None
     cycle_flags: tuple[str, ...] = ()
+    detection: dict | None = None  # mode, period, stats, events as found (JSON-ready)
 
 
 def _scenario(unit: DemoUnit, days: float, seed: int):
@@ -154,72 +157,59 @@ def _scenario(unit: DemoUnit, days: float, seed: int):
     )
 
 
-def simulate_site(out: Path, days: float, seed: int, advance=lambda: None):
-    """Simulate every demo unit; write one CSV per unit, the site file and the ground truth.
+def simulate_unit_files(unit: DemoUnit, days: float, seed: int, out: Path):
+    """Simulate one demo unit and write its trend-log CSV (``rimewatch simulate``'s layout, with
+    columns ``<unit id>/<role>`` so one site file maps every unit's export).
 
-    CSV columns are ``<unit id>/<role>`` (one trend-log export per unit); everything else is
-    ``rimewatch simulate``'s layout. Returns ``(site file path, [UnitOutcome])``.
+    Returns ``(site document of this unit, UnitOutcome)``.
     """
     from rimewatch.commands.simulate import _slug, display_frame, site_document
     from rimewatch.sim.scenario import simulate_unit
 
-    site: dict | None = None
-    outcomes = []
-    for index, unit in enumerate(DEMO_UNITS):
-        scenario = _scenario(unit, days, seed + index)
-        readings, truth = simulate_unit(scenario)
-        prefix = f"{_slug(SITE_NAME)}/{unit.unit_id}"
-        document = site_document(
-            scenario, truth.unit, unit.display_units, prefix, list(readings.columns)
-        )
-        block = document["units"][0]
-        block["name"] = unit.name
-        for point in block["points"]:
-            point["csv_column"] = f"{unit.unit_id}/{point['role']}"
-        if site is None:
-            site = {**document, "units": []}
-            site["site"]["display_units"] = "SI"
-        site["units"].append(block)
+    scenario = _scenario(unit, days, seed)
+    readings, truth = simulate_unit(scenario)
+    prefix = f"{_slug(SITE_NAME)}/{unit.unit_id}"
+    document = site_document(scenario, truth.unit, unit.display_units, prefix, list(readings))
+    block = document["units"][0]
+    block["name"] = unit.name
+    for point in block["points"]:
+        point["csv_column"] = f"{unit.unit_id}/{point['role']}"
 
-        frame = display_frame(readings, unit.display_units, scenario.atmospheric_pressure)
-        # status as words: the CSV importer reads on/off words and 0/1, not "1.0"
-        frame["compressor_status"] = frame["compressor_status"].map({1.0: "on", 0.0: "off"})
-        frame.columns = [f"{unit.unit_id}/{role}" for role in frame.columns]
-        frame.index = frame.index.strftime("%Y-%m-%dT%H:%M:%SZ")
-        frame.index.name = "timestamp"
-        csv_path = out / "data" / f"{unit.unit_id}.csv"
-        csv_path.parent.mkdir(exist_ok=True)
-        frame.to_csv(csv_path)
-        outcomes.append(UnitOutcome(unit, csv_path, truth.summary()))
-        advance()
-    site_path = out / SITE_FILE
-    site_path.write_text(
+    frame = display_frame(readings, unit.display_units, scenario.atmospheric_pressure)
+    # status as words: the CSV importer reads on/off words and 0/1, not "1.0"
+    frame["compressor_status"] = frame["compressor_status"].map({1.0: "on", 0.0: "off"})
+    frame.columns = [f"{unit.unit_id}/{role}" for role in frame.columns]
+    frame.index = frame.index.strftime("%Y-%m-%dT%H:%M:%SZ")
+    frame.index.name = "timestamp"
+    csv_path = out / "data" / f"{unit.unit_id}.csv"
+    csv_path.parent.mkdir(exist_ok=True)
+    frame.to_csv(csv_path)
+    return document, UnitOutcome(unit, csv_path, truth.summary())
+
+
+def write_site_file(out: Path, documents: list[dict]) -> Path:
+    """One site file holding every unit's block."""
+    site = {**documents[0], "units": [d["units"][0] for d in documents]}
+    site["site"] = {**site["site"], "display_units": "SI"}
+    path = out / SITE_FILE
+    path.write_text(
         "# Written by `rimewatch demo`: an invented site, units and data.\n"
         + yaml.safe_dump(site, sort_keys=False)
     )
-    (out / TRUTH_FILE).write_text(json.dumps({o.unit.unit_id: o.truth for o in outcomes}, indent=2))
-    return site_path, outcomes
+    return path
 
 
-def store_site(engine, config, outcomes, advance=lambda: None) -> None:
-    """``rimewatch apply`` then ``rimewatch import`` of each unit's CSV."""
+def import_unit(engine, config, outcome: UnitOutcome) -> None:
+    """``rimewatch import --unit``: the unit's CSV into the store (the site applied before)."""
     from rimewatch.ingest.csv_import import import_csv
-    from rimewatch.site_sync import apply_site, csv_targets
+    from rimewatch.site_sync import csv_targets
 
-    apply_site(engine, config)
-    for outcome in outcomes:
-        fmt, columns, site_id = csv_targets(engine, config, outcome.unit.unit_id)
-        result = import_csv(
-            engine,
-            outcome.csv_path,
-            fmt,
-            columns,
-            config.atmospheric_pressure_Pa,
-            site_id=site_id,
-        )
-        outcome.readings_stored = result.readings_stored + result.readings_already_stored
-        outcome.quarantined = result.quarantined
-        advance()
+    fmt, columns, site_id = csv_targets(engine, config, outcome.unit.unit_id)
+    result = import_csv(
+        engine, outcome.csv_path, fmt, columns, config.atmospheric_pressure_Pa, site_id=site_id
+    )
+    outcome.readings_stored = result.readings_stored + result.readings_already_stored
+    outcome.quarantined = result.quarantined
 
 
 def steady_running(frame: pd.DataFrame, minutes: int = STEADY_AFTER_MIN) -> pd.Series:
@@ -293,71 +283,177 @@ def typical_cycles(frame: pd.DataFrame, refrigerant: str) -> tuple[pd.DataFrame,
     return states, pressures
 
 
-def commission_units(engine, config, outcomes, days: float, out: Path, advance=lambda: None):
-    """``rimewatch commission`` on the first days of stored readings; returns every unit's
-    stored readings by unit id."""
+def commission_unit(engine, config, outcome: UnitOutcome, days: float, out: Path):
+    """``rimewatch commission`` on the first days of stored readings (HTML report, GO / NO-GO).
+
+    Returns all the unit's stored readings (SI, one column per role).
+    """
     from rimewatch.commands.commission import _unit_spec
     from rimewatch.report.commission import build_unit_report, render_html
     from rimewatch.store import find_unit_id, read_unit_frame
 
-    frames = {}
-    end = DEMO_START + timedelta(days=days)
+    unit_config = config.unit(outcome.unit.unit_id)
+    key = find_unit_id(engine, config.site.name, unit_config.id)
+    frame = read_unit_frame(engine, key, DEMO_START, DEMO_START + timedelta(days=days))
     window_end = DEMO_START + timedelta(days=min(COMMISSION_MAX_DAYS, days * COMMISSION_SHARE))
-    generated = datetime.now(UTC)
-    for outcome in outcomes:
-        unit_config = config.unit(outcome.unit.unit_id)
-        key = find_unit_id(engine, config.site.name, unit_config.id)
-        frame = read_unit_frame(engine, key, DEMO_START, end)
-        frames[unit_config.id] = frame
-        report = build_unit_report(
-            _unit_spec(unit_config),
-            frame[frame.index < window_end],
-            config.atmospheric_pressure_Pa,
-        )
-        outcome.commission_go = report.go
-        outcome.commission_blockers = tuple(report.blockers)
-        outcome.commission_html = out / f"commission-{unit_config.id}.html"
-        outcome.commission_html.write_text(
-            render_html([report], config.site.name, generated), encoding="utf-8"
-        )
-        advance()
-    return frames
+    report = build_unit_report(
+        _unit_spec(unit_config), frame[frame.index < window_end], config.atmospheric_pressure_Pa
+    )
+    outcome.commission_go = report.go
+    outcome.commission_blockers = tuple(report.blockers)
+    outcome.commission_html = out / f"commission-{unit_config.id}.html"
+    outcome.commission_html.write_text(
+        render_html([report], config.site.name, datetime.now(UTC)), encoding="utf-8"
+    )
+    return frame
 
 
-def physics_and_diagrams(config, outcomes, frames, out: Path, advance=lambda: None) -> None:
-    """Cycle states and virtual sensors per unit; daily medians; p-h diagram of typical cycles."""
+def physics_and_diagram(config, outcome: UnitOutcome, frame: pd.DataFrame, out: Path) -> None:
+    """Cycle states and virtual sensors, daily medians, p-h diagram of the typical cycles."""
     from rimewatch.physics.refrigerant import get_refrigerant
     from rimewatch.report.ph_diagram import ph_diagram, save_figure
 
-    daily_tables = []
-    for outcome in outcomes:
-        unit_config = config.unit(outcome.unit.unit_id)
-        frame = frames[unit_config.id]
-        physics = unit_physics(frame, unit_config, config)
-        outcome.daily = daily_summary(physics)
-        reasons = physics["flags"].astype(str).str.split("; ").explode()
-        reasons = reasons[(reasons != "") & ~reasons.str.endswith(" missing")]
-        outcome.cycle_flags = tuple(
-            f"{reason}: {count} of {len(physics)} steady samples"
-            for reason, count in reasons.value_counts().items()
+    unit_config = config.unit(outcome.unit.unit_id)
+    physics = unit_physics(frame, unit_config, config)
+    outcome.daily = daily_summary(physics)
+    reasons = physics["flags"].astype(str).str.split("; ").explode()
+    reasons = reasons[(reasons != "") & ~reasons.str.endswith(" missing")]
+    outcome.cycle_flags = tuple(
+        f"{reason}: {count} of {len(physics)} steady samples"
+        for reason, count in reasons.value_counts().items()
+    )
+    states, pressures = typical_cycles(frame, unit_config.refrigerant)
+    if not states.empty:
+        figure = ph_diagram(
+            get_refrigerant(unit_config.refrigerant),
+            states,
+            pressures["suction"].to_numpy(),
+            pressures["discharge"].to_numpy(),
+            labels=list(states.index),
+            unit_system=outcome.unit.display_units,
+            title=f"{unit_config.id} {unit_config.name}: {unit_config.refrigerant}",
         )
-        daily_tables.append(outcome.daily.assign(unit=unit_config.id))
-        states, pressures = typical_cycles(frame, unit_config.refrigerant)
-        if not states.empty:
-            figure = ph_diagram(
-                get_refrigerant(unit_config.refrigerant),
-                states,
-                pressures["suction"].to_numpy(),
-                pressures["discharge"].to_numpy(),
-                labels=list(states.index),
-                unit_system=outcome.unit.display_units,
-                title=f"{unit_config.id} {unit_config.name}: {unit_config.refrigerant}",
-            )
-            outcome.diagram = save_figure(figure, out / f"{unit_config.id}-ph.png")
-        advance()
-    if daily_tables:
-        table = pd.concat(daily_tables).reset_index().set_index(["unit", "date"])
+        outcome.diagram = save_figure(figure, out / f"{unit_config.id}-ph.png")
+
+
+def _event_record(event) -> dict:
+    """A detection event as plain JSON-ready values."""
+    return {
+        "code": event.code,
+        "detail": event.detail,
+        "start": event.start.isoformat(),
+        "end": None if event.end is None else event.end.isoformat(),
+        "severity": round(float(event.severity), 3),
+        "severity_label": event.severity_label,
+        "confidence": round(float(event.confidence), 3),
+        "impact": dict(event.impact),
+        "ranking": [[code, round(float(share), 3)] for code, share in event.ranking],
+        "evidence": event.evidence,
+    }
+
+
+def detect_faults(engine, config, outcome: UnitOutcome, days: float) -> None:
+    """``rimewatch baseline`` on the first quarter, then ``rimewatch analyze`` on the rest.
+
+    Events are stored in the database as the ordinary commands store them.
+    """
+    from rimewatch import detection
+    from rimewatch.store import to_epoch_ms
+
+    start = pd.Timestamp(DEMO_START)
+    baseline_end = start + pd.Timedelta(days=days * BASELINE_SHARE)
+    end = start + pd.Timedelta(days=days)
+    [unit] = detection.stored_units(engine, outcome.unit.unit_id, config.site.name)
+    found = {"baseline": None, "period": [baseline_end.isoformat(), end.isoformat()]}
+    try:
+        now_ms = to_epoch_ms(pd.Timestamp.now(tz="UTC"))
+        detection.fit_and_store_baseline(engine, unit, start, baseline_end, now_ms)
+        found["baseline"] = [start.isoformat(), baseline_end.isoformat()]
+    except ValueError as exc:  # too little fault-free data: the day-one rules judge
+        found["baseline_error"] = str(exc)
+    [result] = detection.analyze_stored_units(engine, [unit], baseline_end, end)
+    found.update(
+        mode=result.mode,
+        error=result.error,
+        stats=result.stats,
+        events=[_event_record(e) for e in result.events],
+    )
+    outcome.detection = found
+
+
+# imported before the pool workers are forked, so they share them
+PRELOADED_MODULES = (
+    "rimewatch.sim.scenario",
+    "rimewatch.detection",
+    "rimewatch.ingest.csv_import",
+    "rimewatch.report.commission",
+    "rimewatch.report.ph_diagram",
+    "rimewatch.physics.virtual_sensors",
+)
+_progress_queue = None  # set in pool workers: where they report finished steps
+
+
+def _start_worker(queue) -> None:
+    global _progress_queue
+    _progress_queue = queue
+
+
+def _report(text: str) -> None:
+    if _progress_queue is not None:
+        _progress_queue.put(text)
+
+
+def _simulate_job(unit: DemoUnit, days: float, seed: int, out: Path):
+    result = simulate_unit_files(unit, days, seed, out)
+    _report(f"{unit.unit_id} simulated")
+    return result
+
+
+def _pipeline_job(outcome: UnitOutcome, site_path: Path, db_url: str, days: float, out: Path):
+    """Import, commissioning, physics and detection of one unit, in its own database session."""
+    from rimewatch.site import load_site
+    from rimewatch.store import connect
+
+    config = load_site(site_path)
+    engine = connect(db_url)
+    try:
+        import_unit(engine, config, outcome)
+        _report(f"{outcome.unit.unit_id} imported")
+        frame = commission_unit(engine, config, outcome, days, out)
+        _report(f"{outcome.unit.unit_id} commissioned")
+        physics_and_diagram(config, outcome, frame, out)
+        _report(f"{outcome.unit.unit_id} cycle physics")
+        detect_faults(engine, config, outcome, days)
+        _report(f"{outcome.unit.unit_id} detection")
+    finally:
+        engine.dispose()
+    return outcome
+
+
+def _run_jobs(pool, queue, jobs, advance) -> list:
+    """Submit ``(function, args)`` jobs; advance the progress bar per reported step; results in
+    job order."""
+    import contextlib
+    import queue as queue_module
+
+    futures = [pool.submit(function, *args) for function, args in jobs]
+    while not all(f.done() for f in futures):
+        with contextlib.suppress(queue_module.Empty):
+            advance(queue.get(timeout=0.1))
+        advance(None)
+    while not queue.empty():
+        advance(queue.get())
+    return [f.result() for f in futures]
+
+
+def _write_tables(outcomes: list[UnitOutcome], out: Path) -> None:
+    """The daily medians of every unit (CSV) and what detection found (JSON)."""
+    daily = [o.daily.assign(unit=o.unit.unit_id) for o in outcomes if o.daily is not None]
+    if daily:
+        table = pd.concat(daily).reset_index().set_index(["unit", "date"])
         table.to_csv(out / DAILY_FILE, float_format="%.5g")
+    findings = {o.unit.unit_id: o.detection for o in outcomes}
+    (out / FINDINGS_FILE).write_text(json.dumps(findings, indent=2, default=str))
 
 
 def _remove_previous_run(out: Path) -> None:
@@ -422,7 +518,49 @@ def _trend_table(outcome: UnitOutcome):
     return table
 
 
-def _print_results(console, outcomes, out: Path, detection_note: str) -> None:
+def _stamp(text: str) -> str:
+    return pd.Timestamp(text).strftime("%b %d %H:%M")
+
+
+def _impact_text(impact: dict) -> str:
+    parts = []
+    if "capacity_loss_pct" in impact:
+        parts.append(f"capacity {impact['capacity_loss_pct']:.1f} % lost")
+    if "cop_loss_pct" in impact:
+        parts.append(f"COP {impact['cop_loss_pct']:.1f} % lost")
+    if "extra_kwh_per_day" in impact:
+        parts.append(f"{impact['extra_kwh_per_day']:.1f} kWh/day extra")
+    return ", ".join(parts)
+
+
+def _found_lines(found: dict) -> list[str]:
+    """What detection found for one unit, as printed (from the pipeline's events only)."""
+    if found.get("error"):
+        return [f"not analysed: {found['error']}"]
+    stats = found["stats"]
+    start, end = found["period"]
+    if found["baseline"]:
+        basis = f"against its baseline {_stamp(found['baseline'][0])} to {_stamp(start)}"
+    else:
+        basis = f"by the day-one rules (no baseline: {found.get('baseline_error', '')})"
+    lines = [
+        f"analysed {_stamp(start)} to {_stamp(end)} UTC {basis}; "
+        f"{stats['steady_minutes']} steady minutes, {stats['hours_judged']} hours judged"
+    ]
+    for event in found["events"]:
+        code = event["code"] + (f" ({event['detail']})" if event["detail"] else "")
+        state = "open" if event["end"] is None else f"cleared {_stamp(event['end'])}"
+        impact = _impact_text(event["impact"])
+        lines.append(
+            f"EVENT {code}: {event['severity_label']}, confidence {event['confidence']:.0%}, "
+            f"from {_stamp(event['start'])} UTC, {state}" + (f"; {impact}" if impact else "")
+        )
+    if not found["events"]:
+        lines.append("no fault event")
+    return lines
+
+
+def _print_results(console, outcomes, out: Path) -> None:
     from rich.markup import escape
 
     from rimewatch.commands.cycle import cautions
@@ -446,7 +584,10 @@ def _print_results(console, outcomes, out: Path, detection_note: str) -> None:
             console.print(_trend_table(outcome))
         for flag in outcome.cycle_flags[:3]:
             console.print(f"  [yellow]cycle flag:[/] {escape(flag)}")
-        console.print(f"found: [dim]{escape(detection_note)}[/]")
+        console.print("[bold]found[/] (rimewatch detection on the stored readings):")
+        for line in _found_lines(outcome.detection):
+            style = "bold red" if line.startswith("EVENT") else ""
+            console.print(f"  [{style}]{escape(line)}[/]" if style else f"  {escape(line)}")
         console.print("[bold]ground truth[/] (what the simulator injected, for comparison only):")
         for line in _format_truth(outcome.truth):
             console.print(f"  {escape(line)}")
@@ -465,6 +606,7 @@ def _print_results(console, outcomes, out: Path, detection_note: str) -> None:
         ("data/", "trend-log CSVs, one per unit"),
         (TRUTH_FILE, "ground truth: faults injected, daily capacity and COP loss"),
         (DAILY_FILE, "daily medians per unit: COP, capacity, superheat, subcooling"),
+        (FINDINGS_FILE, "what detection found per unit (events, as stored in the database)"),
         ("commission-<unit>.html", "commissioning reports"),
         ("<unit>-ph.png", "p-h diagrams, first days against last days"),
     ]
@@ -509,10 +651,16 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
         rimewatch demo
         rimewatch demo --out /tmp/rimewatch-demo --days 7
     """
+    import importlib
+    import multiprocessing
+    import os
+    from concurrent.futures import ProcessPoolExecutor
+
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
     from rimewatch.commands._store_common import load_site_file, open_database
+    from rimewatch.site_sync import apply_site
 
     console = Console(highlight=False)
     if not console.is_terminal:
@@ -522,11 +670,16 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
         _remove_previous_run(out_dir)
     except OSError as error:
         raise click.ClickException(f"--out: cannot use {out_dir}: {error.strerror}") from None
+    db_url = f"sqlite:///{(out_dir / DB_FILE).resolve()}"
 
     console.print(
         f"[bold]{SITE_NAME}[/]: {len(DEMO_UNITS)} units, {days:g} days of one-minute data"
     )
-    steps_per_unit = 4
+    # one worker per core: units are simulated, then imported and analysed, side by side; the
+    # libraries are imported once, before the workers are forked (CoolProp alone takes seconds)
+    context = multiprocessing.get_context("fork")
+    queue = context.Queue()
+    workers = max(1, min(len(DEMO_UNITS), len(os.sched_getaffinity(0))))
     with Progress(
         "[progress.description]{task.description}",
         BarColumn(),
@@ -534,26 +687,48 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
         TimeElapsedColumn(),
         console=console,
         transient=True,
+        auto_refresh=False,  # refreshed by this thread: no thread runs while workers are forked
     ) as progress:
-        task = progress.add_task("simulating", total=steps_per_unit * len(DEMO_UNITS))
+        task = progress.add_task("loading the libraries", total=5 * len(DEMO_UNITS) + 2)
+        progress.refresh()
 
-        def step(description: str):
-            progress.update(task, description=description)
-            return lambda: progress.advance(task)
+        def advance(done: str | None) -> None:
+            if done is not None:
+                progress.update(task, advance=1, description=done)
+            progress.refresh()
 
-        site_path, outcomes = simulate_site(out_dir, days, seed, step("simulating the units"))
-        config = load_site_file(str(site_path))
-        engine = open_database(f"sqlite:///{(out_dir / DB_FILE).resolve()}")
-        try:
-            store_site(engine, config, outcomes, step("importing into the database"))
-            frames = commission_units(
-                engine, config, outcomes, days, out_dir, step("commissioning")
+        for module in PRELOADED_MODULES:
+            importlib.import_module(module)
+        advance("simulating")
+        pool = ProcessPoolExecutor(workers, context, initializer=_start_worker, initargs=(queue,))
+        with pool:
+            # each refrigerant's tables are built once: the second R410A unit comes last
+            order = sorted(DEMO_UNITS, key=lambda u: u.unit_id == "rtu-2")
+            simulated = _run_jobs(
+                pool,
+                queue,
+                [(_simulate_job, (u, days, seed + DEMO_UNITS.index(u), out_dir)) for u in order],
+                advance,
             )
-            physics_and_diagrams(config, outcomes, frames, out_dir, step("cycle physics"))
-        finally:
-            engine.dispose()
-    detection_note = (
-        "detection is not available in this build yet, so nothing is diagnosed; "
-        "the figures above come from the stored readings"
-    )
-    _print_results(console, outcomes, out_dir, detection_note)
+            by_unit = {outcome.unit.unit_id: (doc, outcome) for doc, outcome in simulated}
+            documents = [by_unit[u.unit_id][0] for u in DEMO_UNITS]
+            outcomes = [by_unit[u.unit_id][1] for u in DEMO_UNITS]
+            site_path = write_site_file(out_dir, documents)
+            (out_dir / TRUTH_FILE).write_text(
+                json.dumps({o.unit.unit_id: o.truth for o in outcomes}, indent=2)
+            )
+            config = load_site_file(str(site_path))
+            engine = open_database(db_url)
+            try:
+                apply_site(engine, config)
+            finally:
+                engine.dispose()
+            advance("site applied")
+            outcomes = _run_jobs(
+                pool,
+                queue,
+                [(_pipeline_job, (o, site_path, db_url, days, out_dir)) for o in outcomes],
+                advance,
+            )
+    _write_tables(outcomes, out_dir)
+    _print_results(console, outcomes, out_dir)
