@@ -27,7 +27,7 @@ import click
 import pandas as pd
 import yaml
 
-SITE_NAME = "Hollowell Street Market (invented demo site)"
+SITE_NAME = "Hollowell Street Market"  # invented, like its units, weather and faults
 DEMO_START = datetime(2026, 7, 6, tzinfo=UTC)
 DEMO_CLIMATE = "hot_humid"
 DB_FILE = "demo.db"
@@ -488,10 +488,40 @@ def _format_truth(truth: dict) -> list[str]:
     if truth["daily"]:
         last = truth["daily"][-1]
         lines.append(
-            f"last day: capacity {last['capacity_loss_pct']:+.1f} % lost, COP "
-            f"{last['cop_loss_pct']:+.1f} % lost (against the same minutes fault-free)"
+            f"last day: capacity {last['capacity_loss_pct']:.1f} % lost, COP "
+            f"{last['cop_loss_pct']:.1f} % lost (against the same minutes fault-free)"
         )
     return lines
+
+
+def _comparison(outcome: UnitOutcome) -> str:
+    """Each injected fault matched with the detection event of the same code (and point)."""
+    events = (outcome.detection or {}).get("events", [])
+    faults = outcome.truth["faults"]
+    if not faults:
+        if not events:
+            return "healthy unit, no event: correct"
+        return f"healthy unit, {len(events)} event(s): false alarm"
+    parts = []
+    for fault in faults:
+        matches = [
+            e
+            for e in events
+            if e["code"] == fault["code"]
+            and (fault["code"] != "sensor_fault" or e["detail"].startswith(f"{fault['point']}:"))
+        ]
+        if matches:
+            delay = pd.Timestamp(matches[0]["start"]) - pd.Timestamp(fault["onset"])
+            parts.append(
+                f"{fault['code']} found, event from {delay / pd.Timedelta('1D'):.1f} days "
+                "after the onset"
+            )
+        else:
+            parts.append(f"{fault['code']} not found")
+    others = [e["code"] for e in events if not any(e["code"] == f["code"] for f in faults)]
+    if others:
+        parts.append(f"also raised: {', '.join(others)}")
+    return "; ".join(parts)
 
 
 def _trend_table(outcome: UnitOutcome):
@@ -591,6 +621,7 @@ def _print_results(console, outcomes, out: Path) -> None:
         console.print("[bold]ground truth[/] (what the simulator injected, for comparison only):")
         for line in _format_truth(outcome.truth):
             console.print(f"  {escape(line)}")
+        console.print(f"[bold]found against injected:[/] {escape(_comparison(outcome))}")
         console.print()
 
     shown = set()
@@ -613,8 +644,10 @@ def _print_results(console, outcomes, out: Path) -> None:
     for name, what in listing:
         console.print(f"  {escape(name):<24} {escape(what)}")
     console.print(
-        "\nTry: rimewatch commission "
-        f"{escape(str(out / SITE_FILE))} --db sqlite:///{escape(str(out / DB_FILE))} --unit rtu-1"
+        "\nTry:\n"
+        f"  rimewatch faults --db sqlite:///{escape(str(out.resolve() / DB_FILE))}\n"
+        f"  rimewatch commission {escape(str(out / SITE_FILE))} "
+        f"--db sqlite:///{escape(str(out.resolve() / DB_FILE))} --unit cr-1"
     )
 
 
@@ -673,7 +706,8 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
     db_url = f"sqlite:///{(out_dir / DB_FILE).resolve()}"
 
     console.print(
-        f"[bold]{SITE_NAME}[/]: {len(DEMO_UNITS)} units, {days:g} days of one-minute data"
+        f"[bold]{SITE_NAME}[/] (an invented site): {len(DEMO_UNITS)} units, {days:g} days of "
+        "one-minute data, simulated"
     )
     # one worker per core: units are simulated, then imported and analysed, side by side; the
     # libraries are imported once, before the workers are forked (CoolProp alone takes seconds)

@@ -87,23 +87,37 @@ def test_demo_writes_reports_diagrams_and_a_physically_sound_summary(demo_run):
     assert "A2L" in output  # R32 is class A2L (ASHRAE 34)
 
 
-def test_demo_healthy_unit_raises_no_fault_event(demo_run):
-    out, _ = demo_run
+def _stored_events(out) -> dict:
     with sqlite3.connect(out / DB_FILE) as db:
-        tables = {name for (name,) in db.execute("SELECT name FROM sqlite_master")}
-        if "events" not in tables:
-            pytest.skip("detection is not in this build: no events table")
         rows = db.execute(
-            "SELECT e.code FROM events e JOIN units u ON u.id = e.unit_id WHERE u.key = 'sp-1'"
+            "SELECT u.key, e.code FROM events e JOIN units u ON u.id = e.unit_id"
         ).fetchall()
-    assert rows == []
+    events = {}
+    for unit, code in rows:
+        events.setdefault(unit, []).append(code)
+    return events
+
+
+def test_demo_detection_stores_events_and_spares_the_healthy_unit(demo_run):
+    out, output = demo_run
+    events = _stored_events(out)
+    findings = json.loads((out / "findings.json").read_text())
+    # the healthy split system was judged, and raised nothing
+    assert findings["sp-1"]["stats"]["hours_judged"] > 0
+    assert "sp-1" not in events and findings["sp-1"]["events"] == []
+    # a condenser losing half its airflow over under a day is found, and the printed findings
+    # are the stored events
+    assert "condenser_fouling" in events["cr-1"]
+    assert [e["code"] for e in findings["cr-1"]["events"]] == events["cr-1"]
+    assert "EVENT condenser_fouling" in output
 
 
 def test_demo_run_again_into_the_same_folder_starts_clean(demo_run):
     out, _ = demo_run
-    before = _stored_counts(out)
+    before, events_before = _stored_counts(out), _stored_events(out)
     (out / "notes.txt").write_text("not the demo's")  # a user's file stays
     result = CliRunner().invoke(main, ["demo", "--out", str(out), "--days", DAYS])
     assert result.exit_code == 0, result.output
     assert _stored_counts(out) == before  # same seed, same data, nothing doubled
+    assert _stored_events(out) == events_before
     assert (out / "notes.txt").read_text() == "not the demo's"
