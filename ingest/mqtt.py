@@ -144,6 +144,7 @@ class IngestStats:
 
 
 _STOP = object()
+_POLL_S = 0.002  # decoder's nap while a batch is open and the queue is empty
 
 
 def subscription_filters(point_filters: Sequence[str], extra_filters: Sequence[str]) -> list[str]:
@@ -303,7 +304,7 @@ class Ingester:
 
     def _decode_loop(self) -> None:
         s = self.settings
-        get = self._queue.get
+        get, get_nowait = self._queue.get, self._queue.get_nowait
         decode = self.decoder.decode
         readings: list[tuple[int, int, float]] = []
         rejects: list[Rejection] = []
@@ -311,10 +312,19 @@ class Ingester:
         deadline = 0.0
         stopping = False
         while not stopping:
-            try:
-                item = get(timeout=max(deadline - time.monotonic(), 0.0)) if held else get()
-            except queue.Empty:
-                item = None
+            if not held:
+                item = get()  # idle: block until a message comes
+            else:
+                # Busy: poll with short sleeps rather than block per message, so messages
+                # arriving meanwhile are taken in one go instead of waking this thread each time.
+                try:
+                    item = get_nowait()
+                except queue.Empty:
+                    remaining_s = deadline - time.monotonic()
+                    if remaining_s > 0:
+                        time.sleep(min(_POLL_S, remaining_s))
+                        continue
+                    item = None
             if item is _STOP:
                 stopping = True
             elif item is not None:
