@@ -221,6 +221,7 @@ class Ingester:
         client.on_disconnect = self._on_disconnect
         client.on_message = self._on_message
         client.on_subscribe = self._on_subscribe
+        client.on_connect_fail = self._on_connect_fail
         return client
 
     def start(self) -> None:
@@ -280,6 +281,13 @@ class Ingester:
         if self.filters:
             client.subscribe([(f, 1) for f in self.filters])
         self.connected.set()
+
+    def _on_connect_fail(self, client, userdata) -> None:
+        log.warning(
+            "cannot reach the broker at %s:%d; retrying with backoff",
+            self.settings.host,
+            self.settings.port,
+        )
 
     def _on_subscribe(self, client, userdata, mid, reason_codes, properties) -> None:
         refused = [

@@ -123,6 +123,8 @@ def listen(
         format="%(asctime)s %(levelname)s %(name)s: %(message)s",
     )
     logging.getLogger("alembic").setLevel(logging.WARNING)
+    from sqlalchemy.exc import SQLAlchemyError
+
     from rimewatch.ingest.mqtt import Ingester, MqttSettings, StoreSink
     from rimewatch.ingest.payload import DecodeLimits, decoder_for_points
     from rimewatch.site import SiteConfigError, load_site
@@ -132,12 +134,16 @@ def listen(
     try:
         config = load_site(site_file)
         engine = connect(db_url)
+        for change in apply_site(engine, config):
+            log.info("site file: %s", change)
+        points = active_points(engine, site=config.site.name)
     except (SiteConfigError, DatabaseURLError) as exc:
         raise click.ClickException(str(exc)) from None
-    for change in apply_site(engine, config):
-        log.info("site file: %s", change)
+    except SQLAlchemyError as exc:
+        raise click.ClickException(
+            f"database: {exc.__class__.__name__}: {exc.orig or exc}"
+        ) from None
     site_name = config.site.name
-    points = active_points(engine, site=site_name)
     if not points:
         raise click.ClickException(f"{site_file}: site {site_name!r} has no points")
     try:
