@@ -7,6 +7,8 @@ import math
 from datetime import UTC, datetime, timedelta, timezone
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from rimewatch.ingest.payload import (
     ROLE_RANGES_SI,
@@ -319,3 +321,35 @@ def test_every_role_has_a_plausible_range():
     assert set(ROLES) <= set(ROLE_RANGES_SI)
     for low, high in ROLE_RANGES_SI.values():
         assert low < high
+
+
+json_scalars = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(min_value=-(10**30), max_value=10**30),
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.text(max_size=20),
+)
+json_items = st.dictionaries(
+    st.sampled_from(["value", "ts", "timestamp", "point", "topic", "other"]),
+    json_scalars,
+    max_size=5,
+)
+
+
+@settings(max_examples=200, deadline=None)
+@given(payload=st.binary(max_size=300), topic=st.sampled_from(["acme/rtu-1/oat", "acme/x", "a/b"]))
+def test_arbitrary_bytes_never_raise_and_never_vanish(payload, topic):
+    readings, rejects = decode(topic, payload)
+    # every message becomes at least one reading or one rejection: nothing is silently dropped
+    assert readings or rejects
+    assert all(r.reason for r in rejects)
+
+
+@settings(max_examples=200, deadline=None)
+@given(items=st.lists(json_items, min_size=1, max_size=8))
+def test_every_batch_item_is_stored_or_quarantined(items):
+    readings, rejects = decode("acme/rtu-1/oat", json.dumps(items))
+    assert len(readings) + len(rejects) == len(items)
+    for _, ts_ms, value in readings:
+        assert type(ts_ms) is int and math.isfinite(value)
