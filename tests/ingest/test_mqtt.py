@@ -540,3 +540,29 @@ def test_mqtt_311_persistent_session_keeps_messages_while_away(mosquitto, tmp_pa
         assert ingester.stop()
     assert stored_numbers(tmp_path / "plant.db") == list(range(200))
     engine.dispose()
+
+
+@pytest.mark.mqtt
+@pytest.mark.slow
+def test_locked_database_is_retried_until_it_accepts(mosquitto, tmp_path, caplog):
+    """Another writer holds SQLite's write lock past the 5 s busy timeout: the batch fails, is
+    retried with backoff (nothing acknowledged meanwhile) and stored once the lock is gone."""
+    prefix = fresh_prefix()
+    settings = MqttSettings(host=mosquitto.host, port=mosquitto.port, client_id=f"ingest-{prefix}")
+    ingester, engine = ingester_for(f"sqlite:///{tmp_path / 'plant.db'}", prefix, settings)
+    ingester.start()
+    blocker = sqlite3.connect(tmp_path / "plant.db", isolation_level=None)
+    try:
+        assert ingester.subscribed.wait(10)
+        blocker.execute("BEGIN IMMEDIATE")  # take the write lock
+        publish(mosquitto, numbered(prefix, range(100)))
+        assert wait_until(lambda: ingester.stats.store_failures >= 1, timeout_s=15)
+        assert ingester.stats.readings_stored == 0
+        blocker.execute("ROLLBACK")
+        assert wait_until(lambda: ingester.stats.readings_stored == 100, timeout_s=15)
+    finally:
+        blocker.close()
+        assert ingester.stop()
+    assert stored_numbers(tmp_path / "plant.db") == list(range(100))
+    assert "database is locked" in caplog.text and "nothing acknowledged" in caplog.text
+    engine.dispose()
