@@ -1,11 +1,12 @@
 """Decode MQTT payloads into SI readings, or into rejections with a reason a person can read.
 
-Pure and allocation-light: this is the ingest hot path. Nothing here touches the network, the
-database or the clock; the caller passes the time a message was received.
+Allocation-light, this is the ingest hot path, and free of I/O: nothing here touches the network,
+the database or the clock; the caller passes the time a message was received.
 
 Accepted payloads (the topic names the point unless an item says otherwise):
 
-- a plain number: ``12.5``, ``-3``, ``1.2e5`` (``on``/``off`` for on/off points);
+- a plain number: ``12.5``, ``-3``, ``1.2e5`` (``on``/``off`` for on/off points), timed when
+  received (1 ms apart at least per point);
 - a JSON object: ``{"value": 12.5, "ts": "2025-06-01T12:00:00Z"}`` (``ts`` or ``timestamp``,
   optional: ISO 8601, or epoch seconds, or epoch milliseconds when >= 1e11);
 - a JSON batch: a list of such objects, or ``{"readings": [...]}``; each item may name its point
@@ -239,6 +240,16 @@ class PayloadDecoder:
         self.points_by_name = points_by_name or {}
         self.limits = limits or DecodeLimits()
         self.naive_tz = naive_tz
+        self._last_untimed_ms: dict[Any, int] = {}
+
+    def _untimed_ms(self, target: PointTarget, received_ms: int) -> int:
+        """Time for a reading without a timestamp: when it was received, but at least 1 ms after the
+        point's previous untimed reading, so a drained backlog does not collapse into one instant
+        (which the store would keep only once)."""
+        last = self._last_untimed_ms.get(target.key, -1)
+        ts_ms = received_ms if received_ms > last else last + 1
+        self._last_untimed_ms[target.key] = ts_ms
+        return ts_ms
 
     def decode(
         self,
@@ -321,7 +332,7 @@ class PayloadDecoder:
             reason = f"payload {shown!r} is not a number"
             rejects.append(Rejection(topic, payload, reason, received_ms))
             return
-        reason = _append_reading(target, received_ms, raw, readings)
+        reason = _append_reading(target, self._untimed_ms(target, received_ms), raw, readings)
         if reason is not None:
             rejects.append(Rejection(topic, payload, reason, received_ms))
 
@@ -356,7 +367,7 @@ class PayloadDecoder:
         if ts is None:
             ts = item.get("timestamp")
         if ts is None:
-            ts_ms = received_ms
+            ts_ms = self._untimed_ms(target, received_ms)
         else:
             ts_ms = self._timestamp_ms(ts)
             if type(ts_ms) is str:

@@ -353,3 +353,23 @@ def test_every_batch_item_is_stored_or_quarantined(items):
     assert len(readings) + len(rejects) == len(items)
     for _, ts_ms, value in readings:
         assert type(ts_ms) is int and math.isfinite(value)
+
+
+def test_untimed_readings_of_a_backlog_stay_distinct():
+    # A backlog drained within one millisecond: each plain number keeps its own instant, 1 ms apart,
+    # so the store's (point, time) key does not merge them; other points are independent.
+    decoder = make_decoder()
+    readings, rejects = [], []
+    for text in (b"1", b"2", b"3"):
+        decoder.decode("acme/rtu-1/oat", text, NOW, readings, rejects)
+    decoder.decode("acme/rtu-1/suction_temp", b"40", NOW, readings, rejects)
+    decoder.decode("acme/rtu-1/oat", b'{"value": 4}', NOW, readings, rejects)
+    decoder.decode("acme/rtu-1/oat", b"5", NOW + 10, readings, rejects)
+    assert [(key, ts) for key, ts, _ in readings] == [
+        (3, NOW),
+        (3, NOW + 1),
+        (3, NOW + 2),
+        (2, NOW),
+        (3, NOW + 3),
+        (3, NOW + 10),
+    ]
