@@ -44,7 +44,7 @@ def site_document(prefix: str) -> dict:
     """One unit: suction pressure in kPa(g) on an exact topic (the numbered readings), outdoor air
     in degC on a wildcard topic, and return air on a topic full of SQL syntax."""
     return {
-        "site": {"name": f"Quay Street Deli {prefix}", "timezone": "UTC", "elevation_m": 0},
+        "site": {"name": f"O'Hara's \"Quay\"; Deli -- {prefix}", "timezone": "UTC"},
         "units": [
             {
                 "id": "rtu-1",
