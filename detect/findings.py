@@ -70,8 +70,9 @@ class HourlyFindings:
         column = np.full(len(self.hours), np.nan)
         column[self.hours.isin(pd.DatetimeIndex(hours_checked))] = 0.0
         for hour, finding in hours_found.items():
-            column[self.hours.get_loc(hour)] = 1.0
-            self.found[(key, hour)] = finding
+            if hour in self.hours:  # hours outside the judged period are ignored
+                column[self.hours.get_loc(hour)] = 1.0
+                self.found[(key, hour)] = finding
         self.columns[key] = column
 
     def merge(self, other: HourlyFindings) -> None:

@@ -37,6 +37,8 @@ RESIDUAL_FEATURES = (
 )
 IMPACT_FEATURES = ("cooling_capacity", "compressor_power")
 DEFAULT_TARIFF_PER_KWH = 0.25
+#: history before the judged period used for start-up exclusion, steady windows and stuck runs
+WARM_UP = pd.Timedelta("3h")
 
 
 @dataclass
@@ -68,25 +70,35 @@ def _hour_range(index: pd.DatetimeIndex, since=None, until=None) -> pd.DatetimeI
 
 
 def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prepared:
-    """Align, blank, find running/standstill/steady samples, compute features, check sensors."""
+    """Align, blank, find running/standstill/steady samples, compute features, check sensors.
+
+    Readings up to ``WARM_UP`` before ``since`` serve the start-up exclusion, the steady windows
+    and the stuck-sensor runs; only ``[since, until)`` is judged and returned.
+    """
+    if since is not None:
+        frame = frame.loc[pd.Timestamp(since) - WARM_UP :]
     grid = steady.align(frame)
-    if since is not None or until is not None:
-        grid = grid.loc[since:until]
-        if until is not None and len(grid) and grid.index[-1] >= pd.Timestamp(until):
-            grid = grid.iloc[:-1]
-    if grid.empty:
+    if until is not None:
+        grid = grid[grid.index < pd.Timestamp(until)]
+    judged = np.ones(len(grid), dtype=bool)
+    if since is not None:
+        judged = np.asarray(grid.index >= pd.Timestamp(since))
+    if not judged.any():
         raise ValueError(f"unit {unit.key}: no readings in the period")
-    hours = _hour_range(grid.index, since, until)
+    hours = _hour_range(grid.index[judged], since, until)
     grid, blanked = quality.blank_out_of_range(grid, unit)
     running = steady.running(grid)
     still = steady.standstill_samples(grid)
     features = unit_features(grid, unit, running)
     signals = features.join(grid[[c for c in ("suction_temp", "supply_air_temp") if c in grid]])
     steady_mask = steady.steady(signals, running.loc[features.index])
+    if since is not None:
+        keep = np.asarray(features.index >= pd.Timestamp(since))
+        features, steady_mask = features[keep], steady_mask[keep]
     checks = quality.check_quality(
         grid, blanked, running, still, unit, hours, features, steady_mask
     )
-    return Prepared(grid, hours, running, features, steady_mask, checks)
+    return Prepared(grid[judged], hours, running[judged], features, steady_mask, checks)
 
 
 def _clean_steady_rows(prepared: Prepared) -> pd.Series:

@@ -214,27 +214,52 @@ def check_quality(
     return out
 
 
+def _run_lengths(values: np.ndarray) -> np.ndarray:
+    """For each sample, how many samples in a row up to it hold exactly its value (0 for NaN)."""
+    n = len(values)
+    if n == 0:
+        return np.zeros(0, dtype=int)
+    starts = np.ones(n, dtype=bool)
+    starts[1:] = values[1:] != values[:-1]  # NaN != NaN: a gap always starts a new run
+    position = np.arange(n)
+    run_start = np.maximum.accumulate(np.where(starts, position, 0))
+    return np.where(np.isnan(values), 0, position - run_start + 1)
+
+
+def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
+    total = np.concatenate(([0.0], np.cumsum(flags, dtype=float)))
+    upper = np.arange(1, len(flags) + 1)
+    return total[upper] - total[np.maximum(upper - window, 0)]
+
+
 def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
     status = grid.get("compressor_status")
+    run = running_mask.to_numpy(dtype=bool)
+    if status is not None:
+        switches = np.abs(np.diff(status.to_numpy(dtype=float), prepend=np.nan)) > 0
+    hour_index = hours.get_indexer(hour_of)
     for role in points:
-        values = grid[role]
-        if role in RUNNING_ONLY_POINTS:
-            values = values.where(running_mask)
+        values = grid[role].to_numpy(dtype=float)
         window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
-        min_present = window // 2
-        rolling = values.rolling(window, min_periods=min_present)
-        flat = (rolling.max() - rolling.min()) == 0
-        if role not in AMBIENT_POINTS and status is not None:
-            changes = status.diff().abs().rolling(window, min_periods=1).sum()
-            ran = running_mask.astype(float).rolling(window, min_periods=1).sum()
-            flat &= (changes > 0) | (ran >= min_present)
-        checked = values.notna().groupby(hour_of).sum().reindex(hours, fill_value=0) > 0
-        stuck_hours = flat.groupby(hour_of).any().reindex(hours, fill_value=False)
+        if role in RUNNING_ONLY_POINTS:
+            lengths = np.zeros(len(values), dtype=int)
+            lengths[run] = _run_lengths(values[run])
+        else:
+            lengths = _run_lengths(values)
+        flat = lengths >= window
+        if role not in AMBIENT_POINTS and role not in RUNNING_ONLY_POINTS and status is not None:
+            moved = (_window_sum(switches, window) > 0) | (_window_sum(run, window) >= window // 2)
+            flat &= moved
+        present = ~np.isnan(values) & (hour_index >= 0)
+        checked = np.zeros(len(hours), dtype=bool)
+        checked[hour_index[present]] = True
+        stuck = np.zeros(len(hours), dtype=bool)
+        stuck[hour_index[flat & (hour_index >= 0)]] = True
         found = {
             h: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
-            for h in hours[(stuck_hours & checked).to_numpy()]
+            for h in hours[stuck & checked]
         }
-        out.set(finding_key("sensor_fault", f"{role}:stuck"), hours[checked.to_numpy()], found)
+        out.set(finding_key("sensor_fault", f"{role}:stuck"), hours[checked], found)
 
 
 def _coldest_surroundings(grid: pd.DataFrame) -> pd.Series | None:

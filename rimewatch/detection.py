@@ -24,7 +24,7 @@ from rimewatch.store.readings import read_unit_frame, to_epoch_ms
 from rimewatch.store.schema import Site, Unit
 
 #: readings read before ``since`` so start-up exclusion and steady windows see the run-up
-WARM_UP = pd.Timedelta("90min")
+WARM_UP = pipeline.WARM_UP
 
 
 class DetectionError(ValueError):
