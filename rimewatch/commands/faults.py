@@ -51,23 +51,22 @@ def _print_table(records: list[dict]) -> None:
     from rich.console import Console
     from rich.table import Table
 
-    table = Table(title="fault events", show_lines=False)
-    for name in ("id", "unit", "code", "start", "end", "severity", "confidence", "impact", "ack"):
-        table.add_column(name)
+    table = Table(title="fault events (times UTC)")
+    for name in ("id", "unit", "fault", "since", "until", "severity", "conf.", "impact", "ack"):
+        table.add_column(name, overflow="fold")
     for r in records:
         impact = r["impact"]
         text = (
-            f"-{impact['capacity_loss_pct']}% capacity, {impact['cost_per_day']}/day"
+            f"-{impact['capacity_loss_pct']}% cap., +{impact['extra_kwh_per_day']} kWh/d"
             if impact.get("capacity_loss_pct") is not None
             else ""
         )
-        code = f"{r['code']} ({r['detail']})" if r["detail"] else r["code"]
         table.add_row(
             str(r["id"]),
-            f"{r['site']}/{r['unit']}",
-            code,
-            r["start"][:16],
-            (r["end"] or "open")[:16],
+            r["unit"],
+            f"{r['code']} {r['detail']}".strip(),
+            f"{r['start'][5:10]} {r['start'][11:16]}",
+            "open" if r["end"] is None else f"{r['end'][5:10]} {r['end'][11:16]}",
             r["severity"],
             f"{r['confidence']:.0%}",
             text,
