@@ -1,0 +1,283 @@
+"""Fleet analysis: N units x one day of one-minute data, read from the store, analysed, events
+written. Target (issue 6): 1,000 units in under 15 s on this 2-core machine.
+
+Setup (not timed): ``K`` distinct simulated units (rimewatch.sim; R410A rooftop TXV and split
+orifice units, R404A cold rooms, two climates, seeds) are simulated for 7 baseline days plus the
+judged day; their baselines are fitted once; N units (copies of the K with their own points,
+readings and stored baseline, a quarter of them with an injected fault) go into a SQLite file via
+the site file path (``apply_site``) and ``write_readings``: 14 points x 1,620 minutes per unit.
+
+Timed, in a fresh process (so its peak memory is the analysis's own): ``analyze_stored_units``
+over all units with ``--workers`` processes, split into reading (store -> wide frame), physics
+(cycle states and virtual sensors, ``unit_features``), detection (everything else of the
+analysis) and writing events. Beside it, the same run's floor for reading: one raw sqlite3
+SELECT of all the judged readings.
+
+Usage: .venv/bin/python benchmarks/fleet_analysis.py [--units 1000] [--workers 2] [--db PATH]
+(``--db`` keeps the prepared file for later runs; an existing file with the right units is reused).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import sqlite3
+import subprocess
+import sys
+import tempfile
+import time
+from concurrent.futures import ProcessPoolExecutor
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+START = datetime(2026, 7, 1, tzinfo=UTC)
+DAY = START + timedelta(days=7)
+UNTIL = DAY + timedelta(days=1)
+WARM_UP = timedelta(hours=3)  # as rimewatch.detect.pipeline.WARM_UP
+SITE = "Northgate Retail Park"
+TEMPLATES = [
+    # (kind, climate, seed, fault)
+    ("rooftop_unit", "hot_dry", 1, None),
+    ("rooftop_unit", "hot_humid", 2, None),
+    ("rooftop_unit", "hot_dry", 3, ("condenser_fouling", 0.4)),
+    ("split_system", "hot_humid", 4, None),
+    ("split_system", "hot_dry", 5, None),
+    ("split_system", "hot_humid", 6, ("low_charge", 0.2)),
+    ("cold_room_condensing_unit", "mediterranean", 7, None),
+    ("cold_room_condensing_unit", "hot_dry", 8, ("evaporator_airflow_low", 0.35)),
+]
+ROLE_UNITS = {
+    "suction_pressure": "Pa", "discharge_pressure": "Pa", "liquid_pressure": "Pa",
+    "suction_temp": "K", "discharge_temp": "K", "liquid_temp": "K", "outdoor_air_temp": "K",
+    "condenser_leaving_air_temp": "K", "return_air_temp": "K", "return_air_humidity": "%",
+    "box_temp": "K", "supply_air_temp": "K", "compressor_power": "W",
+    "compressor_current": "A", "compressor_status": "on/off",
+}  # fmt: skip
+
+
+def _template(index: int):
+    from rimewatch.detect.pipeline import fit_unit_baseline
+    from rimewatch.detect.unit import UnitInfo
+    from rimewatch.sim.equipment import default_unit, size_unit
+    from rimewatch.sim.faults import FaultSpec
+    from rimewatch.sim.scenario import Scenario, simulate_unit
+
+    kind, climate, seed, fault = TEMPLATES[index]
+    spec = default_unit(kind)
+    unit = size_unit(spec)
+    faults = (FaultSpec(fault[0], fault[1], DAY - timedelta(days=1)),) if fault else ()
+    frame, _ = simulate_unit(
+        Scenario(unit=spec, start=START, days=8, climate=climate, seed=seed, faults=faults), unit
+    )
+    block = {
+        "id": f"t{index}",
+        "name": f"{kind} template {index}",
+        "kind": kind,
+        "refrigerant": spec.refrigerant,
+        "expansion_device": spec.expansion_device,
+        "nominal_capacity_kW": spec.nominal_capacity_kW,
+        "superheat_target_K": spec.design_superheat_K,
+        "subcooling_target_K": spec.design_subcooling_K,
+        "condenser_airflow_m3_s": spec.condenser_airflow_m3_s,
+        "evaporator_airflow_m3_s": spec.evaporator_airflow_m3_s,
+        "compressor_map": unit.compressor_map.to_dict(),
+    }
+    info = UnitInfo.from_description(block)
+    baseline = fit_unit_baseline(frame, info, START, DAY - timedelta(days=1))
+    judged = frame.loc[DAY - WARM_UP : UNTIL - timedelta(minutes=1)]
+    return block, judged, baseline.to_dict()
+
+
+def prepare(path: Path, n_units: int) -> None:
+    from rimewatch.site import parse_site
+    from rimewatch.site_sync import apply_site
+    from rimewatch.store import active_points, connect, write_readings
+    from rimewatch.store.events import save_baseline
+    from rimewatch.store.readings import to_epoch_ms
+
+    started = time.perf_counter()
+    with ProcessPoolExecutor(max_workers=2) as pool:
+        templates = list(pool.map(_template, range(len(TEMPLATES))))
+    print(
+        f"setup: {len(templates)} templates simulated and fitted in "
+        f"{time.perf_counter() - started:.0f} s"
+    )
+    units = []
+    for i in range(n_units):
+        block, frame, _ = templates[i % len(templates)]
+        roles = [r for r in frame.columns if r in ROLE_UNITS and frame[r].notna().any()]
+        units.append(
+            {**block, "id": f"u{i:04d}", "name": f"unit {i}",
+             "points": [{"role": r, "unit": ROLE_UNITS[r], "mqtt_topic": f"fleet/{i}/{r}"}
+                        for r in roles]}
+        )  # fmt: skip
+    config = parse_site({"site": {"name": SITE, "timezone": "UTC"}, "units": units})
+    engine = connect(f"sqlite:///{path}")
+    apply_site(engine, config)
+    points: dict[str, dict[str, int]] = {}
+    for p in active_points(engine, SITE):
+        points.setdefault(p.unit_key, {})[p.role] = p.id
+    unit_ids = {}
+    with engine.connect() as conn:
+        from sqlalchemy import text
+
+        for key, uid in conn.execute(text("SELECT key, id FROM units")):
+            unit_ids[key] = uid
+    started = time.perf_counter()
+    stored = 0
+    for i in range(n_units):
+        block, frame, baseline = templates[i % len(templates)]
+        key = f"u{i:04d}"
+        ts = frame.index.as_unit("ms").asi8
+        rows = []
+        for role, point_id in points[key].items():
+            values = frame[role].to_numpy()
+            keep = np.isfinite(values) & (np.abs(values) < 1e8)
+            rows.extend(zip([point_id] * int(keep.sum()), ts[keep].tolist(), values[keep].tolist(),
+                            strict=True))  # fmt: skip
+        stored += write_readings(engine, rows)
+        save_baseline(engine, unit_ids[key], baseline, to_epoch_ms(START), to_epoch_ms(DAY), 0)
+    print(
+        f"setup: {stored:,} readings of {n_units} units written in "
+        f"{time.perf_counter() - started:.0f} s"
+    )
+
+
+def _analyse_share(args):
+    path, keys = args
+    from rimewatch.detect import pipeline
+    from rimewatch.detection import Timings, analyze_stored_units, stored_units
+    from rimewatch.store import connect
+
+    physics_s = [0.0]
+    original = pipeline.unit_features
+
+    def timed_features(*a, **k):
+        began = time.perf_counter()
+        try:
+            return original(*a, **k)
+        finally:
+            physics_s[0] += time.perf_counter() - began
+
+    pipeline.unit_features = timed_features
+    engine = connect(f"sqlite:///{path}")
+    units = [u for u in stored_units(engine, site=SITE) if u.info.key in keys]
+    timings = Timings()
+    results = analyze_stored_units(
+        engine, units, pd.Timestamp(DAY), pd.Timestamp(UNTIL), timings=timings
+    )
+    errors = [r.error for r in results if r.error]
+    events = sum(len(r.events) for r in results)
+    rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return timings.read_s, physics_s[0], timings.analyse_s - physics_s[0], timings.write_s, \
+        events, errors, rss_kb  # fmt: skip
+
+
+def analyse(path: Path, workers: int) -> dict:
+    """The timed part (run in a fresh process by main)."""
+    from rimewatch.detection import stored_units
+    from rimewatch.store import connect
+
+    keys = [u.info.key for u in stored_units(connect(f"sqlite:///{path}"), site=SITE)]
+    shares = [(path, set(keys[i::workers])) for i in range(workers)]
+    started = time.perf_counter()
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        parts = list(pool.map(_analyse_share, shares))
+    wall = time.perf_counter() - started
+    parent_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return {
+        "units": len(keys),
+        "wall_s": wall,
+        "read_s": sum(p[0] for p in parts),
+        "physics_s": sum(p[1] for p in parts),
+        "detection_s": sum(p[2] for p in parts),
+        "write_s": sum(p[3] for p in parts),
+        "events": sum(p[4] for p in parts),
+        "errors": [e for p in parts for e in p[5]][:5],
+        "peak_rss_mb_per_worker": max(p[6] for p in parts) / 1024.0,
+        "peak_rss_mb_total": (sum(p[6] for p in parts) + parent_rss) / 1024.0,
+    }
+
+
+def raw_read_floor(path: Path) -> tuple[float, int]:
+    """One plain sqlite3 SELECT of every judged reading, streamed: the floor for the store read."""
+    start_ms = int((pd.Timestamp(DAY) - pd.Timedelta(WARM_UP)).timestamp() * 1000)
+    end_ms = int(pd.Timestamp(UNTIL).timestamp() * 1000)
+    began = time.perf_counter()
+    count = 0
+    with sqlite3.connect(path) as conn:
+        cursor = conn.execute(
+            "SELECT point_id, ts_ms, value FROM readings WHERE ts_ms >= ? AND ts_ms < ?",
+            (start_ms, end_ms),
+        )
+        while rows := cursor.fetchmany(100_000):
+            count += len(rows)
+    return time.perf_counter() - began, count
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--units", type=int, default=1000)
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--db", default=None, help="keep the prepared SQLite file here")
+    parser.add_argument(
+        "--phase", default="all", choices=["all", "analyse"], help=argparse.SUPPRESS
+    )
+    args = parser.parse_args()
+    if args.phase == "analyse":
+        print(json.dumps(analyse(Path(args.db), args.workers)))
+        return
+    folder = None
+    if args.db:
+        path = Path(args.db)
+    else:
+        folder = tempfile.TemporaryDirectory()
+        path = Path(folder.name) / "fleet.db"
+    if not path.exists():
+        prepare(path, args.units)
+    else:
+        print(f"setup: reusing {path}")
+    with sqlite3.connect(path) as conn:
+        for table in ("event_history", "notes", "events"):
+            conn.execute(f"DELETE FROM {table}")
+    out = subprocess.run(
+        [sys.executable, __file__, "--phase", "analyse", "--db", str(path),
+         "--workers", str(args.workers)],
+        capture_output=True, text=True, check=False, env={**os.environ},
+    )  # fmt: skip
+    if out.returncode != 0:
+        print(out.stderr)
+        raise SystemExit("the timed analysis failed")
+    r = json.loads(out.stdout.strip().splitlines()[-1])
+    floor_s, floor_rows = raw_read_floor(path)
+    cpu = r["read_s"] + r["physics_s"] + r["detection_s"] + r["write_s"]
+    print(f"\n{r['units']} units x 1 day (+3 h warm-up), {args.workers} worker processes")
+    print(f"  wall clock                      {r['wall_s']:8.1f} s   (target < 15 s)")
+    parts = (("reading", "read_s"), ("physics", "physics_s"), ("detection", "detection_s"),
+             ("writing", "write_s"))  # fmt: skip
+    for label, key in parts:
+        print(f"  summed over workers: {label:<10} {r[key]:8.1f} s  ({100 * r[key] / cpu:.0f} %)")
+    print(f"  baseline: raw sqlite3 SELECT of the same {floor_rows:,} readings: {floor_s:.1f} s")
+    print(
+        f"  events written {r['events']}; peak RSS {r['peak_rss_mb_per_worker']:.0f} MB per "
+        f"worker, {r['peak_rss_mb_total']:.0f} MB all processes"
+    )
+    if r["errors"]:
+        print("  errors:", r["errors"])
+    print(
+        f"RESULT units={r['units']} wall_s={r['wall_s']:.1f} read_s={r['read_s']:.1f} "
+        f"physics_s={r['physics_s']:.1f} detection_s={r['detection_s']:.1f} "
+        f"write_s={r['write_s']:.1f} raw_select_s={floor_s:.1f} events={r['events']} "
+        f"peak_rss_mb={r['peak_rss_mb_total']:.0f} target_wall_s=15"
+    )
+    if folder is not None:
+        folder.cleanup()
+
+
+if __name__ == "__main__":
+    main()
