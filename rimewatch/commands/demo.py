@@ -436,14 +436,14 @@ def _run_jobs(pool, queue, jobs, advance) -> list:
     import contextlib
     import queue as queue_module
 
-    futures = [pool.submit(function, *args) for function, args in jobs]
-    while not all(f.done() for f in futures):
+    pending = [pool.apply_async(function, args) for function, args in jobs]
+    while not all(job.ready() for job in pending):
         with contextlib.suppress(queue_module.Empty):
             advance(queue.get(timeout=0.1))
         advance(None)
     while not queue.empty():
         advance(queue.get())
-    return [f.result() for f in futures]
+    return [job.get() for job in pending]
 
 
 def _write_tables(outcomes: list[UnitOutcome], out: Path) -> None:
@@ -687,7 +687,6 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
     import importlib
     import multiprocessing
     import os
-    from concurrent.futures import ProcessPoolExecutor
 
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
@@ -734,8 +733,8 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
         for module in PRELOADED_MODULES:
             importlib.import_module(module)
         advance("simulating")
-        pool = ProcessPoolExecutor(workers, context, initializer=_start_worker, initargs=(queue,))
-        with pool:
+        # leaving the block (done, failed or interrupted) terminates the workers
+        with context.Pool(workers, _start_worker, (queue,)) as pool:
             # each refrigerant's tables are built once: the second R410A unit comes last
             order = sorted(DEMO_UNITS, key=lambda u: u.unit_id == "rtu-2")
             simulated = _run_jobs(

@@ -121,3 +121,12 @@ def test_demo_run_again_into_the_same_folder_starts_clean(demo_run):
     assert _stored_counts(out) == before  # same seed, same data, nothing doubled
     assert _stored_events(out) == events_before
     assert (out / "notes.txt").read_text() == "not the demo's"
+
+
+def test_demo_refuses_an_out_path_that_is_a_file(tmp_path):
+    target = tmp_path / "taken"
+    target.write_text("a file, not a folder")
+    result = CliRunner().invoke(main, ["demo", "--out", str(target)])
+    assert result.exit_code != 0 and result.exception is not None
+    assert "--out" in result.output and "Traceback" not in result.output
+    assert target.read_text() == "a file, not a folder"
