@@ -6,13 +6,16 @@ Steps, each the same code the ordinary commands run:
    document and CSV layout), and write the site file, one trend-log CSV per unit and the ground
    truth;
 2. ``apply`` the site file and ``import`` the CSVs into a SQLite file in the demo folder;
-3. the commissioning check of every unit on the stored readings (GO / NO-GO, HTML report);
+3. the commissioning check of every unit on its first days of stored readings (GO / NO-GO,
+   HTML report);
 4. physics on the stored readings: cycle states and virtual sensors (COP, capacity), daily
    medians and a p-h diagram of each unit's typical cycle, first days against last days;
-5. detection on the stored readings, when this build has it.
+5. detection on the stored readings: a baseline fitted on the fault-free first quarter, the rest
+   analysed against it, events stored.
 
-Everything printed as found comes from the pipeline; the ground truth (what was injected) is
-printed beside it, labelled as such, for comparison only.
+Units run side by side in forked worker processes (one per core), the libraries imported once
+before the fork. Everything printed as found comes from the pipeline; the ground truth (what
+was injected) is printed beside it, labelled as such, for comparison only.
 """
 
 from __future__ import annotations
@@ -622,6 +625,8 @@ def _print_results(console, outcomes, out: Path) -> None:
         for line in _format_truth(outcome.truth):
             console.print(f"  {escape(line)}")
         console.print(f"[bold]found against injected:[/] {escape(_comparison(outcome))}")
+        files = [p.name for p in (outcome.commission_html, outcome.diagram) if p is not None]
+        console.print(f"[dim]files: {escape(', '.join(files))}[/]")
         console.print()
 
     shown = set()
