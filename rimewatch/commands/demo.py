@@ -692,6 +692,7 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
     import importlib
     import multiprocessing
     import os
+    import sys
 
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
@@ -713,11 +714,16 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
         f"[bold]{SITE_NAME}[/] (an invented site): {len(DEMO_UNITS)} units, {days:g} days of "
         "one-minute data, simulated"
     )
-    # one worker per core: units are simulated, then imported and analysed, side by side; the
-    # libraries are imported once, before the workers are forked (CoolProp alone takes seconds)
-    context = multiprocessing.get_context("fork")
+    # one worker per core: units are simulated, then imported and analysed, side by side; on
+    # Linux the libraries are imported once, before the workers are forked (CoolProp alone takes
+    # seconds); elsewhere the workers start fresh ("spawn") and import them themselves
+    context = multiprocessing.get_context("fork" if sys.platform == "linux" else "spawn")
     queue = context.Queue()
-    workers = max(1, min(len(DEMO_UNITS), len(os.sched_getaffinity(0))))
+    if hasattr(os, "sched_getaffinity"):
+        cores = len(os.sched_getaffinity(0))
+    else:
+        cores = os.cpu_count() or 1
+    workers = max(1, min(len(DEMO_UNITS), cores))
     with Progress(
         "[progress.description]{task.description}",
         BarColumn(),
