@@ -215,10 +215,13 @@ def import_unit(engine, config, outcome: UnitOutcome) -> None:
     outcome.quarantined = result.quarantined
 
 
-def steady_running(frame: pd.DataFrame, minutes: int = STEADY_AFTER_MIN) -> pd.Series:
-    """True where the compressor has run for ``minutes`` consecutive samples (1-min data)."""
-    on = frame["compressor_status"].fillna(0.0) > 0.5
-    return on.astype(int).rolling(minutes, min_periods=minutes).min().fillna(0).astype(bool)
+def steady_running(frame: pd.DataFrame) -> pd.Series:
+    """True where the compressor has run for ``STEADY_AFTER_MIN`` minutes or more
+    (:func:`rimewatch.physics.standstill.operating_state`)."""
+    from rimewatch.physics import standstill
+
+    state = standstill.operating_state(frame, min_running_s=STEADY_AFTER_MIN * 60.0)
+    return pd.Series(state.to_numpy() == standstill.RUNNING, index=frame.index)
 
 
 def unit_physics(frame: pd.DataFrame, unit_config, config) -> pd.DataFrame:
@@ -257,10 +260,13 @@ def unit_physics(frame: pd.DataFrame, unit_config, config) -> pd.DataFrame:
 
 
 def daily_summary(physics: pd.DataFrame) -> pd.DataFrame:
-    """Per UTC day: medians of COP, capacity [W], superheat and subcooling [K], and sample count."""
-    clean = physics[physics["flags"].astype(str) == ""]
+    """Per UTC day: medians of COP, capacity [W], superheat and subcooling [K], and sample count.
+
+    Flagged samples count too (medians are robust to the odd bad one); a quantity a sample's
+    flags leave undefined is NaN there and skipped.
+    """
     columns = ["cop_virtual", "cooling_capacity", "superheat", "subcooling", "t_evap", "t_cond"]
-    grouped = clean[columns].groupby(clean.index.floor("1D"))
+    grouped = physics[columns].groupby(physics.index.floor("1D"))
     daily = grouped.median()
     daily["steady_samples"] = grouped.size()
     daily.index.name = "date"
@@ -548,6 +554,8 @@ def _trend_table(outcome: UnitOutcome):
     for label, column, scale, fmt, unit in rows:
         values = [daily.at[day, column] * scale for day in picks]
         table.add_row(label, *(fmt.format(v) if math.isfinite(v) else "–" for v in values), unit)
+        if not all(math.isfinite(v) for v in values):
+            table.caption = "–: no sample of that day gives it (see the cycle flags)"
     return table
 
 

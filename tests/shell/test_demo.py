@@ -77,9 +77,12 @@ def test_demo_writes_reports_diagrams_and_a_physically_sound_summary(demo_run):
     daily = pd.read_csv(out / "daily-summary.csv")
     assert set(daily["unit"]) == {u.unit_id for u in DEMO_UNITS}
     # Second law: no daily median cycle beats Carnot between its median saturation temperatures
-    carnot = daily["t_evap"] / (daily["t_cond"] - daily["t_evap"])
-    assert (daily["cop_virtual"] < carnot).all()
-    assert (daily["cop_virtual"] > 1.0).all() and (daily["cooling_capacity"] > 0).all()
+    # (days whose every sample has flash gas in the liquid line have no COP: left out)
+    known = daily.dropna(subset=["cop_virtual", "cooling_capacity"])
+    assert len(known) >= 0.8 * len(daily)
+    carnot = known["t_evap"] / (known["t_cond"] - known["t_evap"])
+    assert (known["cop_virtual"] < carnot).all()
+    assert (known["cop_virtual"] > 1.0).all() and (known["cooling_capacity"] > 0).all()
     truth = json.loads((out / "ground_truth.json").read_text())
     assert truth["sp-1"]["faults"] == [] and truth["rtu-1"]["faults"][0]["code"] == "low_charge"
     assert str(out.resolve()) in output
