@@ -136,13 +136,18 @@ def service_ranges(unit: UnitInfo) -> dict[str, tuple[float, float]]:
 def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, pd.DataFrame]:
     """(grid with implausible values set to NaN, boolean frame of the blanked samples)."""
     ranges = service_ranges(unit)
-    bad = pd.DataFrame(False, index=grid.index, columns=grid.columns)
-    for role in grid.columns:
+    values = grid.to_numpy(dtype=float, copy=True)
+    bad = np.zeros(values.shape, dtype=bool)
+    for j, role in enumerate(grid.columns):
         if role in ranges:
             low, high = ranges[role]
-            values = grid[role]
-            bad[role] = values.notna() & ~values.between(low, high)
-    return grid.mask(bad), bad
+            column = values[:, j]
+            bad[:, j] = ~np.isnan(column) & ((column < low) | (column > high))
+    values[bad] = np.nan
+    return (
+        pd.DataFrame(values, index=grid.index, columns=grid.columns),
+        pd.DataFrame(bad, index=grid.index, columns=grid.columns),
+    )
 
 
 def _hours(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
@@ -173,37 +178,43 @@ def check_quality(
     out = HourlyFindings.empty(hours)
     hour_of = _hours(grid.index)
     points = [c for c in grid.columns if c in SERVICE_RANGES and c != "compressor_status"]
-    present = grid[points].notna() | blanked[points]
-    counts = present.groupby(hour_of).sum().reindex(hours, fill_value=0)
+    slot = hours.get_indexer(hour_of)
+    inside = slot >= 0
+    bad_values = blanked[points].to_numpy()[inside]
+    present_values = grid[points].notna().to_numpy()[inside] | bad_values
+    counts = np.zeros((len(hours), len(points)))
+    bad_counts = np.zeros((len(hours), len(points)))
+    np.add.at(counts, slot[inside], present_values)
+    np.add.at(bad_counts, slot[inside], bad_values)
     any_data = counts.sum(axis=1) > 0
 
     # offline: the whole unit, then single points while others report
     out.set(
         finding_key("sensor_fault", "all:offline"),
         hours,
-        {h: Finding(1.0, 1.0, "no readings at all this hour") for h in hours[~any_data.to_numpy()]},
+        {h: Finding(1.0, 1.0, "no readings at all this hour") for h in hours[~any_data]},
     )
-    for role in points:
-        silent = (counts[role] == 0) & any_data
+    for j, role in enumerate(points):
+        silent = (counts[:, j] == 0) & any_data
         out.set(
             finding_key("sensor_fault", f"{role}:offline"),
-            hours[any_data.to_numpy()],
+            hours[any_data],
             {h: Finding(1.0, 1.0, f"{role}: no readings this hour") for h in hours[silent]},
         )
-
-    # out of range
-    bad_counts = blanked[points].groupby(hour_of).sum().reindex(hours, fill_value=0)
-    for role in points:
-        share = bad_counts[role] / counts[role].where(counts[role] > 0)
-        found = share[share >= OUT_OF_RANGE_SHARE]
+        # out of range
+        reported = counts[:, j] > 0
+        share = np.divide(bad_counts[:, j], counts[:, j], out=np.zeros(len(hours)), where=reported)
+        found = np.flatnonzero(reported & (share >= OUT_OF_RANGE_SHARE))
         out.set(
             finding_key("sensor_fault", f"{role}:out_of_range"),
-            hours[(counts[role] > 0).to_numpy()],
+            hours[reported],
             {
-                h: Finding(
-                    float(min(1.0, s)), 1.0, f"{role}: {s:.0%} of the hour's values out of range"
+                hours[k]: Finding(
+                    float(min(1.0, share[k])),
+                    1.0,
+                    f"{role}: {share[k]:.0%} of the hour's values out of range",
                 )
-                for h, s in found.items()
+                for k in found
             },
         )
 

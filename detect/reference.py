@@ -235,7 +235,7 @@ class Baseline:
 
     def residuals(self, features: pd.DataFrame) -> tuple[pd.DataFrame, pd.Series]:
         """(measured - predicted per feature, envelope position per row: 0 in, 1 near, 2 out)."""
-        out = pd.DataFrame(index=features.index)
+        out = {}
         position = np.zeros(len(features), dtype=int)
         for name, model in self.models.items():
             if name not in features:
@@ -246,7 +246,8 @@ class Baseline:
                 where < 2, features[name].to_numpy(dtype=float) - predicted, np.nan
             )
             position = np.maximum(position, where)
-        return out, pd.Series(position, index=features.index, name="envelope")
+        frame = pd.DataFrame(out, index=features.index)
+        return frame, pd.Series(position, index=features.index, name="envelope")
 
 
 def choose_drivers(features: pd.DataFrame) -> tuple[str, ...]:

@@ -70,14 +70,23 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
 
 def running(grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S) -> pd.Series:
     """True where the compressor has run for at least ``startup_exclusion_s`` [s]."""
-    state = standstill.operating_state(grid, min_running_s=startup_exclusion_s)
-    return pd.Series(state.to_numpy() == standstill.RUNNING, index=grid.index, name="running")
+    return running_and_standstill(grid, startup_exclusion_s)[0]
 
 
 def standstill_samples(grid: pd.DataFrame) -> pd.Series:
     """True where the compressor has been off long enough for the pressures to equalise."""
-    state = standstill.operating_state(grid)
-    return pd.Series(state.to_numpy() == standstill.STANDSTILL, index=grid.index)
+    return running_and_standstill(grid)[1]
+
+
+def running_and_standstill(
+    grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S
+) -> tuple[pd.Series, pd.Series]:
+    """Both masks from one pass (standstill after ``physics.standstill.MIN_STANDSTILL_S``)."""
+    state = standstill.operating_state(grid, min_running_s=startup_exclusion_s).to_numpy()
+    return (
+        pd.Series(state == standstill.RUNNING, index=grid.index, name="running"),
+        pd.Series(state == standstill.STANDSTILL, index=grid.index, name="standstill"),
+    )
 
 
 def steady(
