@@ -48,10 +48,10 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
-from math import erf, sqrt
 
 import numpy as np
 import pandas as pd
+from scipy.special import ndtr
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
 from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS
@@ -178,7 +178,8 @@ SEVERITY_LABELS = ((0.05, "mild"), (0.15, "moderate"))  # loss share below which
 
 
 def _phi(x: np.ndarray) -> np.ndarray:
-    return 0.5 * (1.0 + np.vectorize(erf)(np.asarray(x, float) / sqrt(2.0)))
+    """Standard normal cumulative distribution."""
+    return ndtr(np.asarray(x, float))
 
 
 def sign_probabilities(r, eps, sigma) -> dict[str, np.ndarray]:
@@ -365,13 +366,29 @@ def diagnose(
     found: dict = {code: {} for code in REFRIGERANT_FAULTS}
     drift_checked: dict = {p: [] for p in SINGLE_SENSOR_FEATURES.values()}
     drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
-    for hour in hours:
-        r = residuals.r.loc[hour]
-        if r.notna().sum() < 3:
+    values = residuals.r.to_numpy(dtype=float)
+    bands, spreads = residuals.eps.to_numpy(dtype=float), residuals.sigma.to_numpy(dtype=float)
+    known = np.isfinite(values) & np.isfinite(bands) & np.isfinite(spreads)
+    inside = np.where(known, sign_probabilities(values, bands, spreads)["0"], 1.0)
+    normal_all = np.prod(inside, axis=1)  # every feature judged: the quick test of a sound hour
+    drift_columns = {
+        point: residuals.r.columns.get_loc(feature)
+        for feature, point in SINGLE_SENSOR_FEATURES.items()
+        if feature in residuals.r.columns
+    }
+    for i, hour in enumerate(hours):
+        if np.isfinite(values[i]).sum() < 3:
             continue
         bad = faulty.get(hour, set())
         if "all" in bad or bad & set(DRIVER_POINTS):
             continue
+        if not bad and normal_all[i] >= ABNORMAL_BELOW:
+            checked.append(hour)
+            for point, column in drift_columns.items():
+                if np.isfinite(values[i, column]):
+                    drift_checked[point].append(hour)
+            continue
+        r = residuals.r.loc[hour]
         drop = [f for f in r.index if set(FEATURE_POINTS.get(f, ())) & bad]
         r = r.drop(drop)
         eps, sigma = residuals.eps.loc[hour, r.index], residuals.sigma.loc[hour, r.index]
