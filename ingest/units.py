@@ -279,8 +279,10 @@ def _status_values(values) -> np.ndarray:
 
     def one(value) -> float:
         if isinstance(value, str):
-            return _STATUS_WORDS.get(value.strip().lower(), np.nan)
-        try:
+            word = value.strip().lower()
+            if word in _STATUS_WORDS:
+                return _STATUS_WORDS[word]
+        try:  # numbers, also as text ("1.0", "0.0" as trend logs write binary points)
             number = float(value)
         except (TypeError, ValueError):
             return np.nan

@@ -113,6 +113,13 @@ def test_status_words_and_numbers():
     assert np.isnan(out[6]) and np.isnan(out[7])
 
 
+def test_status_numbers_written_as_text():
+    # Trend logs (and `rimewatch simulate`) write binary points as "1.0" / "0.0".
+    out = to_si(["1.0", "0.0", " 1 ", "nan", "on-ish"], "on/off")
+    np.testing.assert_array_equal(out[:3], [1.0, 0.0, 1.0])
+    assert np.isnan(out[3]) and np.isnan(out[4])
+
+
 def test_arrays_in_arrays_out_and_scalars_stay_scalars():
     readings = np.array([[32.0, 50.0], [95.0, np.nan]])
     out = to_si(readings, "degF")
