@@ -1,4 +1,4 @@
-"""The ``rimewatch`` command line: one group, one module per subcommand under ``rimewatch.commands``.
+"""The ``rimewatch`` command line: one click group, one module per subcommand.
 
 Subcommands are imported only when called, so ``rimewatch --help`` stays fast even though the
 commands themselves pull in CoolProp, pandas and SQLAlchemy.
