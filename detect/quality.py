@@ -329,7 +329,7 @@ def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of) ->
 
 
 IMPLAUSIBLE_CHECKS = (
-    # (feature, points named, lower limit [K], what it means)
+    # (feature, the points it names, what a value below -IMPLAUSIBLE_K means)
     ("superheat", "suction_pressure/suction_temp", "suction colder than its dew point"),
     ("subcooling", "discharge_pressure/liquid_temp", "liquid warmer than its bubble point"),
     ("discharge_superheat", "discharge_pressure/discharge_temp", "discharge below condensing"),

@@ -35,6 +35,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from rimewatch.detect.features import DRIVERS
+
 FORMAT_VERSION = 1
 MIN_TRAINING_SAMPLES = 120
 MIN_TRAINING_HOURS = 8
@@ -252,8 +254,6 @@ class Baseline:
 
 def choose_drivers(features: pd.DataFrame) -> tuple[str, ...]:
     """Drivers with data in (nearly) every sample and some spread."""
-    from rimewatch.detect.features import DRIVERS
-
     chosen = []
     for name in DRIVERS:
         if name not in features:

@@ -21,7 +21,6 @@ temperatures are still moving and every feature looks faulty for a few minutes.
 
 from __future__ import annotations
 
-import numpy as np
 import pandas as pd
 
 from rimewatch.physics import standstill
@@ -118,13 +117,3 @@ def steady(
         present = values.notna().to_numpy()
         ok &= present & (spread <= limit)
     return pd.Series(ok, index=signals.index, name="steady")
-
-
-def hour_bins(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
-    """The UTC hour each sample belongs to (its floor)."""
-    return index.floor("1h")
-
-
-def steady_share(mask: pd.Series) -> float:
-    """Share of running samples that are steady (a diagnostic for reports and tests)."""
-    return float(np.mean(mask.to_numpy())) if len(mask) else 0.0

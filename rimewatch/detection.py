@@ -111,7 +111,7 @@ def load_baseline(engine, unit: StoredUnit) -> Baseline | None:
     return None if data is None else Baseline.from_dict(data)
 
 
-def _close_cleared(conn, unit: StoredUnit, analysis, until_ms: int) -> int:
+def _close_cleared(conn, unit: StoredUnit, analysis) -> int:
     """Close stored open events this run saw cleared (no incoming event of theirs)."""
     closed = 0
     matched = {(e.code, e.detail) for e in analysis.events}
@@ -165,7 +165,7 @@ def analyze_stored_units(
             result.counts = event_store.merge_events(
                 conn, unit.id, [to_incoming(e) for e in analysis.events]
             )
-            result.closed = _close_cleared(conn, unit, analysis, to_epoch_ms(until))
+            result.closed = _close_cleared(conn, unit, analysis)
         timings.write_s += time.perf_counter() - started
         result.mode, result.stats, result.events = (
             analysis.stats["mode"],
