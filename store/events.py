@@ -372,7 +372,8 @@ def notes_for(target, event_ids: list[int]) -> dict[int, list[dict]]:
 def set_maintenance(target, unit_id: int, on: bool, at_ms: int, note: str = "") -> bool:
     """Open (``on``) or close the unit's maintenance window; False when nothing changed.
 
-    Opening also suppresses the unit's events that are open at that moment.
+    Opening also suppresses the unit's events that are open at that moment; closing shows again
+    the events still open then (a fault that outlasts the maintenance is real).
     """
 
     def work(conn: Connection) -> bool:
@@ -394,6 +395,12 @@ def set_maintenance(target, unit_id: int, on: bool, at_ms: int, note: str = "") 
         if current is None:
             return False
         conn.execute(update(table).where(table.c.id == current).values(end_ms=at_ms))
+        events = EventRecord.__table__
+        conn.execute(
+            update(events)
+            .where(and_(events.c.unit_id == unit_id, events.c.end_ms.is_(None)))
+            .values(suppressed=False)
+        )
         return True
 
     return _run(target, work)

@@ -206,7 +206,8 @@ def maintenance(ctx, unit_key, on, site_name, text, db_url):
     """Put UNIT in maintenance mode (--on) or take it out (--off).
 
     Events that start while a unit is in maintenance are stored suppressed (hidden unless
-    `rimewatch faults --all`); its open events are suppressed when maintenance starts.
+    `rimewatch faults --all`); its open events are suppressed when maintenance starts, and
+    those still open when it ends are shown again.
 
     Example:
 
