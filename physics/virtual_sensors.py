@@ -813,6 +813,7 @@ def compute(
     charge_model: ChargeModel | None = None,
     air: AirReadings | None = None,
     extrapolate: bool = False,
+    air_tables: bool | None = None,
 ) -> pd.DataFrame:
     """All virtual sensors for a frame of :func:`rimewatch.physics.cycle.cycle_states`.
 
@@ -836,6 +837,9 @@ def compute(
         Adds the air-side columns the readings allow.
     extrapolate : bool
         Evaluate the map outside its envelope too (such samples are flagged either way).
+    air_tables : bool, optional
+        Moist-air properties from :meth:`MoistAir.tabulated` (True) or directly from ``HAPropsSI``
+        (False); by default the tables above 1000 samples, where the direct calls dominate.
 
     Returns
     -------
@@ -852,7 +856,8 @@ def compute(
     inputs["speed"] = _column(compressor_speed, n)
     moist = None
     if air is not None:
-        moist = MoistAir.tabulated(air.pressure) if n > 1000 else MoistAir(air.pressure)
+        tables = n > 1000 if air_tables is None else air_tables
+        moist = MoistAir.tabulated(air.pressure) if tables else MoistAir(air.pressure)
         for field in fields(AirReadings):
             if field.name != "pressure":
                 inputs[field.name] = _column(getattr(air, field.name), n)

@@ -318,3 +318,26 @@ def test_air_side_of_long_series_agrees_with_direct_hapropssi():
     rise = props("H", t_out, "W", w) - props("H", t_in, "W", w)
     airflow = out["heat_rejection"] * props("Vda", t_in, "W", w) / rise
     np.testing.assert_allclose(out["virtual_condenser_airflow"], airflow, rtol=1e-3)
+
+
+def test_air_tables_on_request_agree_with_direct_hapropssi_for_short_series():
+    # Below 1000 samples compute() calls HAPropsSI directly unless air_tables=True; the tables
+    # must then give the same air side within the bound stated above (0.3 % of the capacity).
+    p_s, p_d, t_suc, t_liq, t_dis = _operating_points(40, seed=23)
+    states = cycle_states(FLUID, p_s, p_d, t_suc, t_liq, t_dis)
+    air = vs.AirReadings(
+        return_air_temp=np.linspace(20.0, 30.0, 40) + KELVIN,
+        return_air_humidity=0.55,
+        supply_air_temp=12.0 + KELVIN,
+        outdoor_air_temp=np.linspace(10.0, 40.0, 40) + KELVIN,
+        condenser_leaving_air_temp=np.linspace(20.0, 52.0, 40) + KELVIN,
+        evaporator_airflow=0.6,
+    )
+    direct = vs.compute(states, p_s, compressor_power=3000.0, air=air)
+    tables = vs.compute(states, p_s, compressor_power=3000.0, air=air, air_tables=True)
+    for column in ("evaporator_capacity_air", "virtual_evaporator_airflow"):
+        np.testing.assert_allclose(tables[column], direct[column], rtol=3e-3)
+    np.testing.assert_allclose(
+        tables["virtual_condenser_airflow"], direct["virtual_condenser_airflow"], rtol=1e-3
+    )
+    assert not np.array_equal(tables["evaporator_capacity_air"], direct["evaporator_capacity_air"])
