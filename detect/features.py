@@ -131,6 +131,7 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
         compressor_power=None if power is None else power.to_numpy(),
         compressor_speed=_column(sub, "compressor_speed"),
         air=air if air.return_air_humidity is not None else _dry_air(air),
+        air_tables=True,  # 0.2 % of HAPropsSI, ~50x faster for a unit-day's few hundred samples
     )
     out["volumetric_efficiency_ratio"] = virtual["volumetric_efficiency_ratio"].to_numpy()
     # the map assumes a sound compressor: scale its capacity by the measured pumping share
