@@ -13,7 +13,9 @@ mark) and then 3 days judged:
   of the hour the event opened, in wall-clock hours and in hours of compressor operation.
 
 Grades are ours, on the simulator's severity scale (see rimewatch.sim.faults); the table shows the
-simulator's true capacity and COP loss per grade so they can be judged. The simulated units carry
+simulator's true capacity and COP loss per grade so they can be judged. A fault whose true
+capacity and COP loss both stay under 1 % has no measurable effect (a valve that compensates a
+restriction); detection is reported with and without those runs. The simulated units carry
 no liquid-pressure point (most field units do not; see docs/detection.md): a liquid-line
 restriction and a blocked expansion device then share one pattern, and the table also gives the
 diagnosis rate counting either as right for those two codes.
@@ -61,6 +63,8 @@ SEVERITY = {  # simulator severity per grade (ours)
     "expansion_valve_fault": (0.2, 0.4, 0.6),
 }
 STARVING = {"liquid_line_restriction", "expansion_valve_fault"}
+#: below this true capacity and COP loss [%] a fault has no measurable effect on the unit
+MEASURABLE_LOSS_PCT = 1.0
 
 
 def _unit(config: str):
@@ -184,6 +188,12 @@ def _pct(num, den):
     return 100.0 * num / den if den else float("nan")
 
 
+def _measurable(o: Outcome) -> bool:
+    """The fault changed the unit's capacity or COP by at least MEASURABLE_LOSS_PCT (truth)."""
+    losses = [o.true_capacity_loss_pct, o.true_cop_loss_pct]
+    return any(np.isfinite(v) and abs(v) >= MEASURABLE_LOSS_PCT for v in losses)
+
+
 def summarise(outcomes: list[Outcome], mode: str) -> dict:
     rows = [o for o in outcomes if o.mode == mode and not o.error]
     free = [o for o in rows if o.code == "none"]
@@ -191,6 +201,7 @@ def summarise(outcomes: list[Outcome], mode: str) -> dict:
     faulted = [o for o in rows if o.code != "none"]
     modsev = [o for o in faulted if o.grade in ("moderate", "severe")]
     detected = [o for o in modsev if o.detected_code]
+    measurable = [o for o in modsev if _measurable(o)]
     right = [o for o in modsev if o.detected_code == o.code]
     right_or_pair = [
         o
@@ -204,6 +215,10 @@ def summarise(outcomes: list[Outcome], mode: str) -> dict:
         "false_alarm_pct": _pct(sum(o.false_days_refrigerant for o in free), judged),
         "false_alarm_any_pct": _pct(sum(o.false_days_any for o in free), judged),
         "detect_pct": _pct(len(detected), len(modsev)),
+        "detect_measurable_pct": _pct(
+            sum(1 for o in measurable if o.detected_code), len(measurable)
+        ),
+        "no_measurable_effect": len(modsev) - len(measurable),
         "diagnose_pct": _pct(len(right), len(modsev)),
         "diagnose_pair_pct": _pct(len(right_or_pair), len(modsev)),
         "mild_detect_pct": _pct(
@@ -258,9 +273,12 @@ def print_table(outcomes: list[Outcome]) -> None:
         print(wrong.groupby(["code", "detected_code"]).size().to_string())
     missed = frame[(frame["mode"] == "baseline") & ~frame["detected"]]
     if len(missed):
-        print("\nMissed (baseline mode): config, code, grade")
+        print("\nMissed (baseline mode): config, code, grade, true capacity / COP loss %")
         for _, row in missed.iterrows():
-            print(f"  {row['config']:<22} {row['code']:<26} {row['grade']}")
+            print(
+                f"  {row['config']:<22} {row['code']:<26} {row['grade']:<9}"
+                f"{row['true_capacity_loss_pct']:6.1f} {row['true_cop_loss_pct']:6.1f}"
+            )
 
 
 def main() -> None:
@@ -292,6 +310,8 @@ def main() -> None:
         f"false_alarm_pct={s['false_alarm_pct']:.2f} "
         f"false_alarm_any_pct={s['false_alarm_any_pct']:.2f} "
         f"unit_days={s['unit_days']} detect_pct={s['detect_pct']:.1f} "
+        f"detect_measurable_pct={s['detect_measurable_pct']:.1f} "
+        f"no_measurable_effect={s['no_measurable_effect']} "
         f"diagnose_pct={s['diagnose_pct']:.1f} diagnose_pair_pct={s['diagnose_pair_pct']:.1f} "
         f"mild_detect_pct={s['mild_detect_pct']:.1f} "
         f"median_ttd_operating_h={s['median_ttd_operating_h']:.1f} "
