@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Iterable, Sequence
 
 import numpy as np
@@ -76,24 +77,37 @@ def _read_unit_frame(conn: Connection, unit_id: int, start_ms: int, end_ms: int)
     ).all()
     if not points:
         return pd.DataFrame(index=_utc_index(np.empty(0, dtype=np.int64)))
-    point_ids = np.array([p[0] for p in points], dtype=np.int64)
     marker = "?" if conn.dialect.paramstyle == "qmark" else "%s"
     sql = (
-        f"SELECT point_id, ts_ms, value FROM readings WHERE point_id IN "
-        f"({', '.join([marker] * len(points))}) AND ts_ms >= {marker} AND ts_ms < {marker}"
+        f"SELECT ts_ms, value FROM readings WHERE point_id = {marker} "
+        f"AND ts_ms >= {marker} AND ts_ms < {marker} ORDER BY ts_ms"
     )
-    # The driver's own cursor: plain tuples, no per-row Row objects (10x faster for big windows).
+    # One query per point, in primary-key order, on the driver's own cursor: plain tuples
+    # flattened straight into numpy (no per-row Row objects, no nested-list conversion).
     cursor = conn.connection.dbapi_connection.cursor()
     try:
-        cursor.execute(sql, (*point_ids.tolist(), start_ms, end_ms))
-        rows = cursor.fetchall()
+        columns = []
+        for point_id, _ in points:
+            cursor.execute(sql, (point_id, start_ms, end_ms))
+            rows = cursor.fetchall()
+            flat = itertools.chain.from_iterable(rows)
+            columns.append(np.fromiter(flat, np.float64, count=2 * len(rows)).reshape(-1, 2))
     finally:
         cursor.close()
-    data = np.array(rows, dtype=np.float64).reshape(-1, 3)
-    stamps, row_of = np.unique(data[:, 1].astype(np.int64), return_inverse=True)
-    wide = np.full((len(stamps), len(points)), np.nan)
-    wide[row_of, np.searchsorted(point_ids, data[:, 0].astype(np.int64))] = data[:, 2]
-    return pd.DataFrame(wide, index=_utc_index(stamps), columns=[p[1] for p in points])
+    return pd.DataFrame(*_widen(columns), columns=[p[1] for p in points])
+
+
+def _widen(columns: list[np.ndarray]) -> tuple[np.ndarray, pd.DatetimeIndex]:
+    """(time [ms], value) pairs per point, each sorted by time -> wide values and their index."""
+    first = columns[0][:, 0]
+    if all(len(c) == len(first) and np.array_equal(c[:, 0], first) for c in columns):
+        wide = np.column_stack([c[:, 1] for c in columns])  # every point at the same instants
+        return wide, _utc_index(first.astype(np.int64))
+    stamps = np.unique(np.concatenate([c[:, 0] for c in columns]))
+    wide = np.full((len(stamps), len(columns)), np.nan)
+    for j, column in enumerate(columns):
+        wide[np.searchsorted(stamps, column[:, 0]), j] = column[:, 1]
+    return wide, _utc_index(stamps.astype(np.int64))
 
 
 def _utc_index(epoch_ms: np.ndarray) -> pd.DatetimeIndex:

@@ -143,6 +143,19 @@ def test_read_unit_frame_is_wide_utc_and_half_open(db_url):
         read_unit_frame(engine, unit_id, "2024-06-01 12:00", "2024-06-02 12:00")
 
 
+def test_read_unit_frame_points_at_the_same_instants_written_out_of_order(db_url):
+    engine = connect(db_url)
+    _, unit_id, (p_suc, t_suc) = _unit_with_points(engine)
+    minutes = [4, 0, 3, 1, 2]
+    write_readings(engine, [(p_suc, T0_MS + m * 60_000, 1e5 + m) for m in minutes])
+    write_readings(engine, [(t_suc, T0_MS + m * 60_000, 280.0 + m) for m in reversed(minutes)])
+    start = pd.Timestamp(T0_MS, unit="ms", tz="UTC")
+    frame = read_unit_frame(engine, unit_id, start, start + pd.Timedelta(hours=1))
+    assert frame.index.is_monotonic_increasing and len(frame) == 5
+    assert frame["suction_pressure"].tolist() == [1e5 + m for m in range(5)]
+    assert frame["suction_temp"].tolist() == [280.0 + m for m in range(5)]
+
+
 def test_sql_significant_characters_are_plain_data(db_url):
     engine = connect(db_url)
     tricky = 'Bob\'s "Deli"; DROP TABLE readings; --'
