@@ -27,10 +27,8 @@ evaporator_air_drop           10 K                            4 K         common
                                                                           400 cfm/ton
 ============================  ==============================  ==========  ===================
 
-The indoor wet bulb for the orifice chart comes from return air temperature and humidity by
-Stull's formula: Stull, R. (2011). "Wet-bulb temperature from relative humidity and air
-temperature." Journal of Applied Meteorology and Climatology 50(11): 2267-2269 (valid 5-99 %RH,
--20..50 degC, error within about 0.3 K).
+The indoor wet bulb for the orifice chart comes from return air temperature and humidity through
+CoolProp's humid-air functions (:func:`rimewatch.physics.psychrometrics.wet_bulb_temperature`).
 """
 
 from __future__ import annotations
@@ -39,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from rimewatch.detect.unit import UnitInfo
+from rimewatch.physics.psychrometrics import wet_bulb_temperature
 
 DEFAULT_VALVE_SUPERHEAT_K = 6.0
 DEFAULT_VALVE_SUBCOOLING_K = 6.0
@@ -54,35 +53,16 @@ ORIFICE_SUPERHEAT_CLIP_F = (5.0, 40.0)
 RULE_UNCERTAINTY_K = 0.7
 
 
-def wet_bulb_stull(temperature_K, relative_humidity):
-    """Wet-bulb temperature [K] from dry bulb [K] and relative humidity [0-1] (Stull 2011).
-
-    .. math::
-
-        T_w = T \\arctan(0.151977 (RH + 8.313659)^{1/2}) + \\arctan(T + RH)
-              - \\arctan(RH - 1.676331) + 0.00391838 RH^{3/2} \\arctan(0.023101 RH) - 4.686035
-
-    with T in degC and RH in percent.
-    """
-    t = np.asarray(temperature_K, float) - 273.15
-    rh = 100.0 * np.asarray(relative_humidity, float)
-    tw = (
-        t * np.arctan(0.151977 * np.sqrt(rh + 8.313659))
-        + np.arctan(t + rh)
-        - np.arctan(rh - 1.676331)
-        + 0.00391838 * rh**1.5 * np.arctan(0.023101 * rh)
-        - 4.686035
-    )
-    return tw + 273.15
-
-
-def orifice_target_superheat(return_air_temp, return_air_humidity, outdoor_air_temp):
+def orifice_target_superheat(
+    return_air_temp, return_air_humidity, outdoor_air_temp, pressure=101325.0
+):
     """Target superheat [K] of a fixed-orifice unit from the trade's charging chart formula.
 
     Common practice (from memory): target [F] = (3 WB_indoor - 80 - DB_outdoor) / 2, both in F,
-    clipped to 5-40 F.
+    clipped to 5-40 F. Temperatures [K], humidity [0-1], pressure [Pa].
     """
-    wb_f = (wet_bulb_stull(return_air_temp, return_air_humidity) - 273.15) * 1.8 + 32.0
+    wet_bulb = wet_bulb_temperature(return_air_temp, return_air_humidity, pressure)
+    wb_f = (wet_bulb - 273.15) * 1.8 + 32.0
     db_f = (np.asarray(outdoor_air_temp, float) - 273.15) * 1.8 + 32.0
     target_f = np.clip((3.0 * wb_f - 80.0 - db_f) / 2.0, *ORIFICE_SUPERHEAT_CLIP_F)
     return target_f / 1.8
@@ -108,6 +88,7 @@ def expectations(features: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, 
             features["return_air_temp"],
             features["return_air_humidity"],
             features["outdoor_air_temp"],
+            unit.atmospheric_pressure,
         )
         out["superheat"] = features["superheat"] - target
     bands["superheat"] = SUPERHEAT_BAND_K
