@@ -68,12 +68,24 @@ class HourlyFindings:
     def set(self, key: str, hours_checked, hours_found: dict) -> None:
         """Record a check: the hours evaluated, and hour -> Finding for the hours found."""
         column = np.full(len(self.hours), np.nan)
-        column[self.hours.isin(pd.DatetimeIndex(hours_checked))] = 0.0
+        column[self._positions(hours_checked)] = 0.0
         for hour, finding in hours_found.items():
             if hour in self.hours:  # hours outside the judged period are ignored
                 column[self.hours.get_loc(hour)] = 1.0
                 self.found[(key, hour)] = finding
         self.columns[key] = column
+
+    def _positions(self, stamps) -> np.ndarray:
+        """Positions in ``hours`` of those of ``stamps`` it holds (a sorted search, no pandas)."""
+        if not isinstance(stamps, pd.DatetimeIndex):
+            stamps = pd.DatetimeIndex(stamps)
+        if len(stamps) == 0 or len(self.hours) == 0:
+            return np.empty(0, dtype=np.intp)
+        if stamps.tz != self.hours.tz or not self.hours.is_monotonic_increasing:
+            return np.flatnonzero(self.hours.isin(stamps))
+        mine, theirs = self.hours.asi8, stamps.as_unit(self.hours.unit).asi8
+        where = np.minimum(np.searchsorted(mine, theirs), len(mine) - 1)
+        return where[mine[where] == theirs]
 
     def merge(self, other: HourlyFindings) -> None:
         for key, column in other.columns.items():
