@@ -92,7 +92,10 @@ class ReferenceModel:
 
     def predict(self, drivers: pd.DataFrame) -> np.ndarray:
         """Prediction per row of ``drivers`` (NaN where a driver is missing)."""
-        x = drivers[list(self.drivers)].to_numpy(dtype=float)
+        return self.predict_array(drivers[list(self.drivers)].to_numpy(dtype=float))
+
+    def predict_array(self, x: np.ndarray) -> np.ndarray:
+        """Prediction per row of ``x``, one column per driver in ``self.drivers`` order."""
         z = (x - np.asarray(self.mean)) / np.asarray(self.scale)
         powers = np.asarray(self.powers, dtype=float)
         terms = np.prod(z[:, None, :] ** powers[None, :, :], axis=2)
@@ -100,13 +103,17 @@ class ReferenceModel:
 
     def envelope_position(self, drivers: pd.DataFrame) -> np.ndarray:
         """0 inside the training envelope, 1 within the extrapolation margin, 2 beyond (abstain)."""
-        position = np.zeros(len(drivers), dtype=int)
-        for name in self.drivers:
+        return self.envelope_position_array(drivers[list(self.drivers)].to_numpy(dtype=float))
+
+    def envelope_position_array(self, x: np.ndarray) -> np.ndarray:
+        """:meth:`envelope_position` of ``x``, one column per driver in ``self.drivers`` order."""
+        position = np.zeros(len(x), dtype=int)
+        for j, name in enumerate(self.drivers):
             low, high = self.envelope[name]
             margin = max(
                 EXTRAPOLATION_MARGIN_SHARE * (high - low), EXTRAPOLATION_MARGIN.get(name, 0.0)
             )
-            values = drivers[name].to_numpy(dtype=float)
+            values = x[:, j]
             outside = (values < low) | (values > high)
             beyond = (values < low - margin) | (values > high + margin) | ~np.isfinite(values)
             position = np.maximum(position, np.where(beyond, 2, np.where(outside, 1, 0)))
@@ -239,11 +246,15 @@ class Baseline:
         """(measured - predicted per feature, envelope position per row: 0 in, 1 near, 2 out)."""
         out = {}
         position = np.zeros(len(features), dtype=int)
+        arrays: dict[tuple[str, ...], np.ndarray] = {}  # models mostly share one driver set
         for name, model in self.models.items():
             if name not in features:
                 continue
-            where = model.envelope_position(features)
-            predicted = model.predict(features)
+            x = arrays.get(model.drivers)
+            if x is None:
+                x = arrays[model.drivers] = features[list(model.drivers)].to_numpy(dtype=float)
+            where = model.envelope_position_array(x)
+            predicted = model.predict_array(x)
             out[name] = np.where(
                 where < 2, features[name].to_numpy(dtype=float) - predicted, np.nan
             )
