@@ -155,7 +155,7 @@ _ORIFICE = {
     },
 }  # fmt: skip
 PATTERNS = {"valve": _VALVE, "orifice": _ORIFICE}
-#: a feature that deviates alone points at its own sensor (residual drift)
+#: sensors a residual pattern can blame (residual drift), with the feature each one drives most
 SINGLE_SENSOR_FEATURES = {
     "superheat": "suction_temp",
     "discharge_temp": "discharge_temp",
@@ -267,6 +267,7 @@ def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) 
     p = {sign: dict(zip(names, values, strict=True)) for sign, values in probabilities.items()}
     normal = float(np.prod(probabilities["0"])) if names else 1.0
     deviating = [n for n in names if p["0"][n] < 0.05]
+    inside = {n: float(p["0"][n]) for n in names}
     scores = {}
     for code, pattern in PATTERNS[device_class].items():
         used = [f for f in pattern if f in p["0"]]
@@ -278,7 +279,36 @@ def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) 
     ranking = []
     if total > 1e-12:
         ranking = sorted(((c, s / total) for c, s in scores.items()), key=lambda cs: -cs[1])
-    return {"normal": normal, "ranking": ranking, "deviating": deviating, "fit": total}
+    return {
+        "normal": normal,
+        "ranking": ranking,
+        "deviating": deviating,
+        "inside": inside,
+        "fit": total,
+    }
+
+
+def suspect_sensor(deviating: list[str], inside: dict[str, float]) -> str | None:
+    """The one sensor that all deviating features share, when features built from the other
+    candidates look normal; None when no single sensor explains the deviations.
+
+    A drifting suction temperature, say, moves superheat and the enthalpy-based virtual sensors
+    but leaves the evaporating temperature (suction pressure alone) as expected.
+    """
+    if not deviating:
+        return None
+    candidates = set.intersection(*(set(FEATURE_POINTS.get(f, ())) for f in deviating))
+    normal = [f for f, p0 in inside.items() if p0 > 0.5 and f not in deviating]
+    for single_point_only in (True, False):
+        for feature in normal:
+            points = set(FEATURE_POINTS.get(feature, ()))
+            if len(candidates) > 1 and (len(points) == 1 or not single_point_only):
+                candidates = (candidates - points) or candidates
+    if len(candidates) != 1:
+        return None
+    (point,) = candidates
+    primary = {v: k for k, v in SINGLE_SENSOR_FEATURES.items()}.get(point)
+    return point if primary in deviating else None
 
 
 @dataclass(frozen=True)
@@ -356,8 +386,8 @@ def diagnose(
         their features are dropped for that hour; a fault on a driver point skips the hour.
     impacts : measured/expected capacity and power per hour, for the impact figures.
     tariff_per_kWh : energy price for the cost per day [currency/kWh].
-    residual_drift : report a feature deviating alone as its sensor's drift (baseline mode; the
-        day-one rules judge too few features for that).
+    residual_drift : report deviations that one sensor explains as that sensor's drift
+        (:func:`suspect_sensor`; baseline mode, the day-one rules judge too few features).
     """
     hours = residuals.r.index
     out = HourlyFindings.empty(hours)
@@ -400,19 +430,19 @@ def diagnose(
         if result["normal"] >= ABNORMAL_BELOW:
             continue
         samples = int(residuals.steady_samples.get(hour, 0))
-        alone = len(result["deviating"]) == 1
-        if residual_drift and alone and result["deviating"][0] in SINGLE_SENSOR_FEATURES:
-            feature = result["deviating"][0]
-            point = SINGLE_SENSOR_FEATURES[feature]
-            if not result["ranking"] or result["ranking"][0][1] < 0.5 or result["fit"] < 1e-3:
-                drift_found[point][hour] = Finding(
-                    float(min(1.0, abs(r[feature]) / (6 * eps[feature]))),
-                    0.6,
-                    f"{feature} residual {r[feature]:+.2f} alone, every other feature as "
-                    "expected: the sensor has probably drifted",
-                    samples,
-                )
-                continue
+        point = suspect_sensor(result["deviating"], result["inside"]) if residual_drift else None
+        unexplained = not result["ranking"] or result["ranking"][0][1] < 0.5
+        if point is not None and (unexplained or result["fit"] < 1e-3):
+            feature = {v: k for k, v in SINGLE_SENSOR_FEATURES.items()}[point]
+            shown = ", ".join(f"{f} {r[f]:+.2f}" for f in result["deviating"])
+            drift_found[point][hour] = Finding(
+                float(min(1.0, abs(r[feature]) / (6 * eps[feature]))),
+                0.6,
+                f"residuals {shown} all depend on {point} and everything else is as "
+                "expected: the sensor has probably drifted",
+                samples,
+            )
+            continue
         if not result["ranking"] or result["fit"] < 1e-3:
             continue  # abnormal but no fault pattern fits: not raised as a refrigerant fault
         code, confidence = result["ranking"][0]

@@ -18,6 +18,9 @@ family persists as one event. Its code is the fault with the largest summed prob
 the found hours up to the moment the event opened, and stays fixed (a stored event's key never
 changes); the ranking and confidence keep being updated from all found hours.
 
+An event's impact is the median over its last ``RECENT_IMPACT_HOURS`` (6) found hours, so a
+growing fault shows what it costs now; its severity is the largest seen.
+
 Defaults (ours): 3 hours, 60 steady samples, 2 hours span, clear after 6 checked hours. Sensor
 findings need no steady samples; ``offline`` needs ``OFFLINE_MIN_HOURS`` (6) found hours, so a
 logger outage of a few hours is a gap, not a fault.
@@ -36,6 +39,7 @@ from rimewatch.detect.quality import OFFLINE_MIN_HOURS
 
 HOUR = pd.Timedelta("1h")
 REFRIGERANT_FAMILY = "refrigerant"
+RECENT_IMPACT_HOURS = 6
 
 
 @dataclass(frozen=True)
@@ -177,8 +181,10 @@ def _leading_code(found: list) -> str:
     return _ranking(found)[0][0]
 
 
-def _median_impact(found: list) -> dict:
-    impacts = [f.impact for _, _, f in found if f.impact]
+def _recent_impact(found: list) -> dict:
+    """Median impact over the last ``RECENT_IMPACT_HOURS`` found hours: what the fault costs now
+    (a fault that grows would read too low as a median over its whole life)."""
+    impacts = [f.impact for _, _, f in found if f.impact][-RECENT_IMPACT_HOURS:]
     if not impacts:
         return {}
     return {k: round(float(np.median([i[k] for i in impacts if k in i])), 2) for k in impacts[-1]}
@@ -202,7 +208,7 @@ def _event(unit, key, code, found, detected, closed: bool) -> Event:
         last_seen=last_hour + HOUR,
         severity=round(max(f.severity for _, _, f in found), 3),
         confidence=round(confidence, 3),
-        impact=_median_impact(found),
+        impact=_recent_impact(found),
         ranking=ranking,
         evidence=last.evidence,
         history=[(h, round(f.severity, 3), round(f.confidence, 3)) for h, _, f in found],

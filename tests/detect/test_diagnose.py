@@ -118,3 +118,17 @@ def test_impact_of_a_fouled_condenser():
     assert event.impact["cost_per_day"] == pytest.approx(
         0.25 * event.impact["extra_kwh_per_day"], abs=0.011
     )
+
+
+def test_one_sensor_explains_deviations_that_share_it():
+    # A drifting suction temperature: superheat and the volumetric-efficiency ratio (built from
+    # the suction enthalpy) deviate; the evaporating temperature (suction pressure alone) does not.
+    inside = {"t_evap": 0.99, "t_cond": 0.98, "subcooling": 0.97, "discharge_temp": 0.9}
+    assert (
+        diagnose.suspect_sensor(["superheat", "volumetric_efficiency_ratio"], inside)
+        == "suction_temp"
+    )
+    # the same deviations with the evaporating temperature off too: not one sensor
+    assert diagnose.suspect_sensor(["superheat", "t_evap"], {"t_cond": 0.99}) is None
+    # a liquid approach alone: the liquid sensor, not the outdoor one (t_cond is normal)
+    assert diagnose.suspect_sensor(["liquid_approach"], {"t_cond": 0.99}) == "liquid_temp"

@@ -87,3 +87,15 @@ def test_sensor_findings_are_separate_events_per_point_and_kind():
         ("sensor_fault", "liquid_temp:stuck"),
         ("sensor_fault", "suction_temp:drift"),
     ]
+
+
+def test_event_impact_is_the_recent_one():
+    findings = HourlyFindings.empty(HOURS)
+    found = {
+        h: Finding(0.3, 0.8, "", 30, (), {"capacity_loss_pct": float(k), "cost_per_day": 0.1 * k})
+        for k, h in enumerate(HOURS[:20])
+    }
+    findings.set("low_charge", HOURS[:20], found)
+    (event,) = derive_events("u", findings)
+    # a growing fault: the median of the last six hours (14..19), not of all twenty
+    assert event.impact["capacity_loss_pct"] == 16.5
