@@ -66,9 +66,15 @@ class HourlyFindings:
         return pd.DataFrame(self.columns, index=self.hours)
 
     def set(self, key: str, hours_checked, hours_found: dict) -> None:
-        """Record a check: the hours evaluated, and hour -> Finding for the hours found."""
+        """Record a check: the hours evaluated, and hour -> Finding for the hours found.
+
+        ``hours_checked`` holds hours, or is a boolean mask over ``self.hours``.
+        """
         column = np.full(len(self.hours), np.nan)
-        column[self._positions(hours_checked)] = 0.0
+        if isinstance(hours_checked, np.ndarray) and hours_checked.dtype == bool:
+            column[hours_checked] = 0.0
+        else:
+            column[self._positions(hours_checked)] = 0.0
         for hour, finding in hours_found.items():
             if hour in self.hours:  # hours outside the judged period are ignored
                 column[self.hours.get_loc(hour)] = 1.0

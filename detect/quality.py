@@ -182,24 +182,24 @@ def check_quality(
     inside = slot >= 0
     bad_values = blanked[points].to_numpy()[inside]
     present_values = grid[points].notna().to_numpy()[inside] | bad_values
-    counts = np.zeros((len(hours), len(points)))
-    bad_counts = np.zeros((len(hours), len(points)))
-    np.add.at(counts, slot[inside], present_values)
-    np.add.at(bad_counts, slot[inside], bad_values)
+    cells = (slot[inside][:, None] * len(points) + np.arange(len(points))).ravel()
+    shape, size = (len(hours), len(points)), len(hours) * len(points)
+    counts = np.bincount(cells, present_values.ravel(), size).reshape(shape)
+    bad_counts = np.bincount(cells, bad_values.ravel(), size).reshape(shape)
     any_data = counts.sum(axis=1) > 0
 
     # offline: the whole unit, then single points while others report
     out.set(
         finding_key("sensor_fault", "all:offline"),
         hours,
-        {h: Finding(1.0, 1.0, "no readings at all this hour") for h in hours[~any_data]},
+        {hours[k]: Finding(1.0, 1.0, "no readings at all this hour") for k in _where(~any_data)},
     )
     for j, role in enumerate(points):
         silent = (counts[:, j] == 0) & any_data
         out.set(
             finding_key("sensor_fault", f"{role}:offline"),
-            hours[any_data],
-            {h: Finding(1.0, 1.0, f"{role}: no readings this hour") for h in hours[silent]},
+            any_data,
+            {hours[k]: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in _where(silent)},
         )
         # out of range
         reported = counts[:, j] > 0
@@ -207,7 +207,7 @@ def check_quality(
         found = np.flatnonzero(reported & (share >= OUT_OF_RANGE_SHARE))
         out.set(
             finding_key("sensor_fault", f"{role}:out_of_range"),
-            hours[reported],
+            reported,
             {
                 hours[k]: Finding(
                     float(min(1.0, share[k])),
@@ -223,6 +223,10 @@ def check_quality(
     if features is not None and steady_mask is not None:
         _check_implausible(out, features, steady_mask, hours)
     return out
+
+
+def _where(mask: np.ndarray) -> list[int]:
+    return np.flatnonzero(mask).tolist()
 
 
 def _run_lengths(values: np.ndarray) -> np.ndarray:
@@ -267,10 +271,10 @@ def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
         stuck = np.zeros(len(hours), dtype=bool)
         stuck[hour_index[flat & (hour_index >= 0)]] = True
         found = {
-            h: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
-            for h in hours[stuck & checked]
+            hours[k]: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
+            for k in _where(stuck & checked)
         }
-        out.set(finding_key("sensor_fault", f"{role}:stuck"), hours[checked], found)
+        out.set(finding_key("sensor_fault", f"{role}:stuck"), checked, found)
 
 
 def _coldest_surroundings(grid: pd.DataFrame) -> pd.Series | None:
