@@ -340,26 +340,47 @@ IMPLAUSIBLE_CHECKS = (
 )
 
 
+def hourly_medians(values: np.ndarray, slot: np.ndarray, n_hours: int):
+    """(median, count) of the non-NaN ``values`` per hour slot 0 .. n_hours - 1 (slot -1 ignored).
+
+    The median of an even count is the mean of the two middle values, as pandas computes it.
+    """
+    keep = (slot >= 0) & ~np.isnan(values)
+    slot, values = slot[keep], values[keep]
+    values = values[np.lexsort((values, slot))]
+    sizes = np.bincount(slot, minlength=n_hours)
+    first = np.cumsum(sizes) - sizes
+    medians = np.full(n_hours, np.nan)
+    has = sizes > 0
+    low, high = first[has] + (sizes[has] - 1) // 2, first[has] + sizes[has] // 2
+    medians[has] = (values[low] + values[high]) / 2.0
+    return medians, sizes
+
+
 def _check_implausible(out, features, steady_mask, hours) -> None:
-    steady_rows = features.loc[steady_mask.reindex(features.index, fill_value=False).to_numpy()]
-    frame = steady_rows.assign(
-        discharge_superheat=steady_rows["discharge_temp"] - steady_rows["t_cond"]
-    )
-    hour_of = _hours(frame.index)
+    steady = steady_mask.reindex(features.index, fill_value=False).to_numpy(dtype=bool)
+    slot = hours.get_indexer(_hours(features.index[steady]))
+
+    def column(name):
+        return features[name].to_numpy(dtype=float)[steady]
+
+    judged_values = {
+        "superheat": column("superheat"),
+        "subcooling": column("subcooling"),
+        "discharge_superheat": column("discharge_temp") - column("t_cond"),
+    }
     for feature, points, meaning in IMPLAUSIBLE_CHECKS:
-        values = frame[feature].dropna()
-        groups = values.groupby(hour_of[frame[feature].notna().to_numpy()])
-        medians, sizes = groups.median(), groups.size()
-        medians = medians[sizes >= MIN_IMPLAUSIBLE_SAMPLES]
+        medians, sizes = hourly_medians(judged_values[feature], slot, len(hours))
+        judged = sizes >= MIN_IMPLAUSIBLE_SAMPLES
         found = {
-            h: Finding(
-                float(min(1.0, -m / 10.0)),
+            hours[k]: Finding(
+                float(min(1.0, -medians[k] / 10.0)),
                 0.8,
-                f"{meaning}: median {feature} {m:+.1f} K in steady running",
+                f"{meaning}: median {feature} {medians[k]:+.1f} K in steady running",
             )
-            for h, m in medians[medians < -IMPLAUSIBLE_K].items()
+            for k in _where(judged & (medians < -IMPLAUSIBLE_K))
         }
-        out.set(finding_key("sensor_fault", f"{points}:implausible"), medians.index, found)
+        out.set(finding_key("sensor_fault", f"{points}:implausible"), judged, found)
 
 
 def faulty_points(findings: HourlyFindings) -> dict[pd.Timestamp, set[str]]:

@@ -1,0 +1,25 @@
+"""detect.quality.hourly_medians against an independent implementation: pandas' groupby median."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from rimewatch.detect.quality import hourly_medians
+
+
+def test_hourly_medians_match_pandas_groupby_median():
+    rng = np.random.default_rng(7)
+    for _ in range(50):
+        n = int(rng.integers(0, 200))
+        slot = np.sort(rng.integers(-1, 12, n))  # -1: outside the judged hours
+        values = rng.normal(0.0, 5.0, n)
+        values[rng.random(n) < 0.2] = np.nan
+        medians, sizes = hourly_medians(values, slot, 12)
+        inside = (slot >= 0) & ~np.isnan(values)
+        groups = pd.Series(values[inside]).groupby(slot[inside])
+        np.testing.assert_array_equal(medians, groups.median().reindex(range(12)).to_numpy())
+        np.testing.assert_array_equal(sizes, groups.size().reindex(range(12), fill_value=0))
+    # even count: mean of the two middle values; NaN ignored; an empty hour has no median
+    medians, sizes = hourly_medians(np.array([4.0, 1.0, np.nan, 3.0, 2.0]), np.zeros(5, int), 2)
+    assert medians[0] == 2.5 and sizes.tolist() == [4, 0] and np.isnan(medians[1])
