@@ -294,42 +294,42 @@ def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of) ->
         for role in pressures:
             out.set(finding_key("sensor_fault", f"{role}:drift"), [], {})
         return
-    sub = grid.loc[still, pressures].assign(coldest=coldest[still])
-    medians = sub.groupby(hour_of[still]).median()
-    sizes = sub.groupby(hour_of[still]).size()
-    medians = medians[sizes >= MIN_STANDSTILL_SAMPLES].dropna(subset=["coldest"])
-    saturation = {
-        role: pd.Series(
-            fast.saturation_temperature(unit.refrigerant, medians[role].to_numpy(), "dew"),
-            index=medians.index,
+    slot = hours.get_indexer(hour_of[still])
+    rows = np.bincount(slot[slot >= 0], minlength=len(hours))
+    air, _ = hourly_medians(coldest.to_numpy(dtype=float)[still], slot, len(hours))
+    judged = (rows >= MIN_STANDSTILL_SAMPLES) & ~np.isnan(air)
+    saturation = {}
+    for role in pressures:
+        medians, _ = hourly_medians(grid[role].to_numpy(dtype=float)[still], slot, len(hours))
+        saturation[role] = np.full(len(hours), np.nan)
+        saturation[role][judged] = fast.saturation_temperature(
+            unit.refrigerant, medians[judged], "dew"
         )
-        for role in pressures
-    }
     for role in pressures:
         others = [saturation[o] for o in pressures if o != role]
-        off_air = saturation[role] - medians["coldest"]
+        off_air = saturation[role] - air
+        checked = judged & ~np.isnan(off_air)
         found = {}
-        for hour, deviation in off_air.dropna().items():
-            if abs(deviation) <= DRIFT_LIMIT_K:
-                continue
+        for k in _where(checked & (np.abs(off_air) > DRIFT_LIMIT_K)):
+            deviation = off_air[k]
             if others:
-                other = others[0].get(hour, np.nan)
+                other = others[0][k]
                 if not np.isfinite(other):
                     continue
-                if abs(saturation[role][hour] - other) <= DRIFT_LIMIT_K:
+                if abs(saturation[role][k] - other) <= DRIFT_LIMIT_K:
                     continue  # the two pressures agree: not this sensor
-                if abs(other - medians["coldest"][hour]) > DRIFT_AGREE_K:
+                if abs(other - air[k]) > DRIFT_AGREE_K:
                     continue  # neither pressure fits the air: no verdict about this one
                 confidence = 0.9
             else:
                 confidence = 0.6
-            found[hour] = Finding(
+            found[hours[k]] = Finding(
                 float(min(1.0, abs(deviation) / 10.0)),
                 confidence,
                 f"{role} at standstill: saturation {deviation:+.1f} K from the coldest air "
                 "temperature (should be equalised)",
             )
-        out.set(finding_key("sensor_fault", f"{role}:drift"), off_air.dropna().index, found)
+        out.set(finding_key("sensor_fault", f"{role}:drift"), checked, found)
 
 
 IMPLAUSIBLE_CHECKS = (
