@@ -11,7 +11,9 @@ Timed, in a fresh process (so its peak memory is the analysis's own): ``analyze_
 over all units with ``--workers`` processes, split into reading (store -> wide frame), physics
 (cycle states and virtual sensors, ``unit_features``), detection (everything else of the
 analysis) and writing events. Beside it, the same run's floor for reading: one raw sqlite3
-SELECT of all the judged readings.
+SELECT of all the judged readings. The workers' CPU seconds and the load average before the run
+are printed too: on a shared machine the CPU seconds / workers is the wall clock the run would take
+alone.
 
 Usage: .venv/bin/python benchmarks/fleet_analysis.py [--units 1000] [--workers 2] [--db PATH]
 (``--db`` keeps the prepared file for later runs; an existing file with the right units is reused).
@@ -168,14 +170,16 @@ def _analyse_share(args):
     engine = connect(f"sqlite:///{path}")
     units = [u for u in stored_units(engine, site=SITE) if u.info.key in keys]
     timings = Timings()
+    cpu_started = time.process_time()
     results = analyze_stored_units(
         engine, units, pd.Timestamp(DAY), pd.Timestamp(UNTIL), timings=timings
     )
     errors = [r.error for r in results if r.error]
     events = sum(len(r.events) for r in results)
+    cpu_s = time.process_time() - cpu_started
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     return timings.read_s, physics_s[0], timings.analyse_s - physics_s[0], timings.write_s, \
-        events, errors, rss_kb  # fmt: skip
+        events, errors, rss_kb, cpu_s  # fmt: skip
 
 
 def analyse(path: Path, workers: int) -> dict:
@@ -185,6 +189,7 @@ def analyse(path: Path, workers: int) -> dict:
 
     keys = [u.info.key for u in stored_units(connect(f"sqlite:///{path}"), site=SITE)]
     shares = [(path, set(keys[i::workers])) for i in range(workers)]
+    load_before = os.getloadavg()[0]
     started = time.perf_counter()
     with ProcessPoolExecutor(max_workers=workers) as pool:
         parts = list(pool.map(_analyse_share, shares))
@@ -197,6 +202,8 @@ def analyse(path: Path, workers: int) -> dict:
         "physics_s": sum(p[1] for p in parts),
         "detection_s": sum(p[2] for p in parts),
         "write_s": sum(p[3] for p in parts),
+        "cpu_s": sum(p[7] for p in parts),
+        "load_before": load_before,
         "events": sum(p[4] for p in parts),
         "errors": [e for p in parts for e in p[5]][:5],
         "peak_rss_mb_per_worker": max(p[6] for p in parts) / 1024.0,
@@ -262,6 +269,13 @@ def main() -> None:
              ("writing", "write_s"))  # fmt: skip
     for label, key in parts:
         print(f"  summed over workers: {label:<10} {r[key]:8.1f} s  ({100 * r[key] / cpu:.0f} %)")
+    print(
+        f"  CPU time of the workers         {r['cpu_s']:8.1f} s   (/ {args.workers} workers = "
+        f"{r['cpu_s'] / args.workers:.1f} s: the wall clock on an otherwise idle machine)"
+    )
+    print(
+        f"  load average before the run     {r['load_before']:8.2f}   (other work shares the cores)"
+    )
     print(f"  baseline: raw sqlite3 SELECT of the same {floor_rows:,} readings: {floor_s:.1f} s")
     print(
         f"  events written {r['events']}; peak RSS {r['peak_rss_mb_per_worker']:.0f} MB per "
@@ -272,8 +286,10 @@ def main() -> None:
     print(
         f"RESULT units={r['units']} wall_s={r['wall_s']:.1f} read_s={r['read_s']:.1f} "
         f"physics_s={r['physics_s']:.1f} detection_s={r['detection_s']:.1f} "
-        f"write_s={r['write_s']:.1f} raw_select_s={floor_s:.1f} events={r['events']} "
-        f"peak_rss_mb={r['peak_rss_mb_total']:.0f} target_wall_s=15"
+        f"write_s={r['write_s']:.1f} cpu_s={r['cpu_s']:.1f} raw_select_s={floor_s:.1f} "
+        f"events={r['events']} "
+        f"peak_rss_mb={r['peak_rss_mb_total']:.0f} load_before={r['load_before']:.1f} "
+        f"target_wall_s=15"
     )
     if folder is not None:
         folder.cleanup()
