@@ -93,33 +93,39 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
         discharge_temp=_column(sub, "discharge_temp"),
         liquid_pressure=_column(sub, "liquid_pressure"),
     )
-    for name in ("t_evap", "t_cond", "superheat", "subcooling"):
-        out[name] = states[name].to_numpy()
-    nan = pd.Series(np.nan, index=sub.index)
+    # columns gathered as arrays, the frame built once at the end
+    out = {name: states[name].to_numpy() for name in ("t_evap", "t_cond", "superheat")}
+    out["subcooling"] = states["subcooling"].to_numpy()
+    nan = np.full(len(sub), np.nan)
+
+    def reading(name: str) -> np.ndarray:
+        return sub[name].to_numpy() if name in sub else nan
+
     for name in ("discharge_temp", "liquid_temp", *DRIVERS):
-        out[name] = sub.get(name, nan)
-    zone = sub.get("return_air_temp", nan)
+        out[name] = reading(name)
+    zone = reading("return_air_temp")
     if "box_temp" in sub:
-        zone = zone.fillna(sub["box_temp"])
+        zone = np.where(np.isnan(zone), sub["box_temp"].to_numpy(), zone)
         out["return_air_temp"] = zone
-    out["condensing_approach"] = out["t_cond"] - out["outdoor_air_temp"]
-    out["liquid_approach"] = out["liquid_temp"] - out["outdoor_air_temp"]
-    supply = sub.get("supply_air_temp", nan)
+    outdoor = out["outdoor_air_temp"]
+    out["condensing_approach"] = out["t_cond"] - outdoor
+    out["liquid_approach"] = out["liquid_temp"] - outdoor
+    supply = reading("supply_air_temp")
     out["evaporator_air_drop"] = zone - supply
-    leaving = sub.get("condenser_leaving_air_temp", nan)
-    out["condenser_air_rise"] = leaving - out["outdoor_air_temp"]
+    leaving = reading("condenser_leaving_air_temp")
+    out["condenser_air_rise"] = leaving - outdoor
     if "liquid_pressure" in sub and "discharge_pressure" in sub:
-        out["liquid_line_drop"] = sub["discharge_pressure"] - sub["liquid_pressure"]
+        out["liquid_line_drop"] = reading("discharge_pressure") - reading("liquid_pressure")
     else:
-        out["liquid_line_drop"] = np.nan
+        out["liquid_line_drop"] = nan
 
     power = _column(sub, "compressor_power")
     air = vs.AirReadings(
-        return_air_temp=zone.to_numpy(),
+        return_air_temp=zone,
         return_air_humidity=_column(sub, "return_air_humidity"),
-        supply_air_temp=supply.to_numpy(),
-        outdoor_air_temp=out["outdoor_air_temp"].to_numpy(),
-        condenser_leaving_air_temp=leaving.to_numpy(),
+        supply_air_temp=supply,
+        outdoor_air_temp=outdoor,
+        condenser_leaving_air_temp=leaving,
         pressure=unit.atmospheric_pressure,
     )
     if air.return_air_humidity is not None:
@@ -148,10 +154,10 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     )
     # with (nearly) no superheat the suction may carry liquid: h1, and every virtual sensor
     # built on it (energy-balance flow, capacity, heat rejection, airflows), is unknown
-    wet = ~(out["superheat"].to_numpy() >= MIN_SUPERHEAT_FOR_ENTHALPY_K)
+    wet = ~(out["superheat"] >= MIN_SUPERHEAT_FOR_ENTHALPY_K)
     for name in ENTHALPY_FEATURES:
-        out.loc[wet, name] = np.nan
-    return out
+        out[name] = np.where(wet, np.nan, out[name])
+    return pd.DataFrame(out, index=sub.index)
 
 
 def _dry_air(air: vs.AirReadings) -> vs.AirReadings:
