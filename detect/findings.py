@@ -94,6 +94,11 @@ class HourlyFindings:
         return where[mine[where] == theirs]
 
     def merge(self, other: HourlyFindings) -> None:
+        same_hours = other.hours.equals(self.hours)
         for key, column in other.columns.items():
-            self.columns[key] = pd.Series(column, index=other.hours).reindex(self.hours).to_numpy()
+            if same_hours:
+                self.columns[key] = column.copy()
+            else:
+                reindexed = pd.Series(column, index=other.hours).reindex(self.hours)
+                self.columns[key] = reindexed.to_numpy()
         self.found.update(other.found)
