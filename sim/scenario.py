@@ -203,7 +203,8 @@ def simulate_unit(scenario: Scenario, unit: UnitParameters | None = None):
 
     running = np.flatnonzero(on)
     columns = (
-        "t_evap", "t_cond", "p_evap", "p_discharge", "superheat", "subcooling", "suction_temp",
+        "t_evap", "t_cond", "p_evap", "p_discharge", "p_valve_in", "superheat", "subcooling",
+        "suction_temp",
         "liquid_temp", "discharge_temp", "mass_flow", "power", "current", "capacity",
         "heat_rejection", "cop", "supply_temp", "supply_w", "condenser_leaving_air_temp",
         "sensible_capacity", "valve_opening", "valve_inlet_quality", "evaporator_outlet_quality",
@@ -231,7 +232,8 @@ def simulate_unit(scenario: Scenario, unit: UnitParameters | None = None):
     signals = {
         "suction_pressure": relax(on, truth["p_evap"], p_rest, tau_p, 1.0),
         "discharge_pressure": relax(on, truth["p_discharge"], p_rest, tau_p, 1.5),
-        "liquid_pressure": relax(on, truth["p_discharge"], p_rest, tau_p, 1.5),
+        # before the expansion device (design.md), so after any liquid-line restriction
+        "liquid_pressure": relax(on, truth["p_valve_in"], p_rest, tau_p, 1.5),
         "suction_temp": relax(on, truth["suction_temp"], t_zone, 8.0, 3.0),
         "discharge_temp": relax(on, truth["discharge_temp"], t_out, 15.0, 4.0),
         "liquid_temp": relax(on, truth["liquid_temp"], t_out, 5.0, 2.0),

@@ -91,3 +91,21 @@ def test_every_kind_runs_and_converges():
         _, truth = simulate_unit(Scenario(unit=default_unit(kind), days=1, sensors=CLEAN))
         assert truth.non_converged_minutes == 0
         assert truth.states["compressor_on"].sum() > 30
+
+
+def test_liquid_pressure_is_read_after_a_liquid_line_restriction():
+    # design.md places liquid_pressure before the expansion device, i.e. downstream of a clogged
+    # filter-drier: the restriction's pressure drop shows as discharge minus liquid pressure
+    # (the liquid-line restriction indicator of Li and Braun, 2007).
+    scenario = Scenario(
+        days=1,
+        seed=3,
+        faults=(parse_fault("liquid_line_restriction:severity=0.4:onset=2026-07-01T12:00"),),
+        sensors=CLEAN,
+    )
+    readings, _ = simulate_unit(scenario)
+    running = readings["compressor_status"].to_numpy() > 0.5
+    drop = (readings["discharge_pressure"] - readings["liquid_pressure"])[running]
+    before, after = drop[drop.index.hour < 11], drop[drop.index.hour >= 13]
+    assert before.median() == pytest.approx(0.0, abs=1e3)  # Pa: no restriction, no drop
+    assert after.median() > 50e3  # Pa: the restriction's drop, measured
