@@ -91,8 +91,8 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
         suction_temp=_column(sub, "suction_temp"),
         liquid_temp=_column(sub, "liquid_temp"),
         discharge_temp=_column(sub, "discharge_temp"),
-        liquid_pressure=_column(sub, "liquid_pressure"),
-    )
+    )  # subcooling at the condenser outlet, where the liquid temperature is read; the liquid
+    # pressure (at the expansion device, after any restriction) feeds liquid_line_drop only
     # columns gathered as arrays, the frame built once at the end
     out = {name: states[name].to_numpy() for name in ("t_evap", "t_cond", "superheat")}
     out["subcooling"] = states["subcooling"].to_numpy()
