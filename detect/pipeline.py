@@ -139,20 +139,21 @@ def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):
 def _impact_inputs(prepared, steady_rows, residuals, baseline) -> diagnose.ImpactInputs | None:
     if not all(name in baseline.models and name in residuals for name in IMPACT_FEATURES):
         return None
-    hour_of = steady_rows.index.floor("1h")
-    measured = steady_rows[list(IMPACT_FEATURES)].groupby(hour_of).median()
-    expected = (
-        (steady_rows[list(IMPACT_FEATURES)] - residuals[list(IMPACT_FEATURES)])
-        .groupby(hour_of)
-        .median()
-    )
+    slot = prepared.hours.get_indexer(steady_rows.index.floor("1h"))
+
+    def hourly_median(values: np.ndarray) -> pd.Series:
+        medians, _ = quality.hourly_medians(values, slot, len(prepared.hours))
+        return pd.Series(medians, index=prepared.hours)
+
+    measured = {name: steady_rows[name].to_numpy(dtype=float) for name in IMPACT_FEATURES}
+    expected = {name: measured[name] - residuals[name].to_numpy(dtype=float) for name in measured}
     days = max(len(prepared.hours) / 24.0, 1.0 / 24.0)
     running_hours = float(prepared.running.sum()) / 60.0 / days
     return diagnose.ImpactInputs(
-        measured["cooling_capacity"],
-        expected["cooling_capacity"],
-        measured["compressor_power"],
-        expected["compressor_power"],
+        hourly_median(measured["cooling_capacity"]),
+        hourly_median(expected["cooling_capacity"]),
+        hourly_median(measured["compressor_power"]),
+        hourly_median(expected["compressor_power"]),
         running_hours,
     )
 
