@@ -59,7 +59,14 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
     if frame.empty:
         return frame.astype(float)
     frame = frame.sort_index().astype(float)
-    grid = frame.resample(GRID).mean()
+    stamps = frame.index.as_unit("ns").asi8
+    minute = 60_000_000_000
+    if frame.index.is_unique and not (stamps % minute).any():
+        # readings already on whole minutes (one per bin): the bin means are the readings
+        bins = pd.date_range(frame.index[0], frame.index[-1], freq=GRID, name=frame.index.name)
+        grid = frame.reindex(bins.as_unit(frame.index.unit))
+    else:
+        grid = frame.resample(GRID).mean()
     if hold_minutes > 0:
         grid = grid.ffill(limit=hold_minutes)
     if "compressor_status" in grid:
