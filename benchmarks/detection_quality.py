@@ -15,10 +15,11 @@ mark) and then 3 days judged:
 Grades are ours, on the simulator's severity scale (see rimewatch.sim.faults); the table shows the
 simulator's true capacity and COP loss per grade so they can be judged. A fault whose true
 capacity and COP loss both stay under 1 % has no measurable effect (a valve that compensates a
-restriction); detection is reported with and without those runs. The simulated units carry
-no liquid-pressure point (most field units do not; see docs/detection.md): a liquid-line
-restriction and a blocked expansion device then share one pattern, and the table also gives the
-diagnosis rate counting either as right for those two codes.
+restriction); detection is reported with and without those runs. The commercial units (rooftop
+units, the cold room) carry a liquid-pressure point at the expansion device, the split systems do
+not (most small units have none). Without it a liquid-line restriction and a blocked expansion
+device share one pattern, so the summary gives the diagnosis rate for each group and, besides,
+the rate counting either of those two codes as right.
 
 The same runs are judged by the day-one rules (no baseline) as the comparison baseline.
 
@@ -51,6 +52,8 @@ CONFIGS = {
     "rtu-R32-eev": ("rooftop_unit", "R32", "eev", "mediterranean"),
     "split-R134a-orifice": ("split_system", "R134a", "fixed_orifice", "hot_dry"),
 }
+#: configurations wired with a liquid-pressure point at the expansion device
+LIQUID_PRESSURE_POINT = {"rtu-R410A-txv", "coldroom-R404A-txv", "rtu-R32-eev"}
 GRADES = ("mild", "moderate", "severe")
 SEVERITY = {  # simulator severity per grade (ours)
     "low_charge": (0.1, 0.2, 0.35),
@@ -136,7 +139,8 @@ def run_scenario(config: str, code: str, grade: str, seed: int) -> list[Outcome]
         unit=spec, start=START, days=(END - START).days, climate=climate, seed=seed, faults=faults
     )
     frame, truth = simulate_unit(scenario, unit)
-    frame = frame.drop(columns=["liquid_pressure"], errors="ignore")
+    if config not in LIQUID_PRESSURE_POINT:
+        frame = frame.drop(columns=["liquid_pressure"], errors="ignore")
     states = truth.states.loc[ONSET:]
     running = states["compressor_on"] & states["converged"]
     capacity_loss = 100 * (
@@ -220,6 +224,14 @@ def summarise(outcomes: list[Outcome], mode: str) -> dict:
         ),
         "no_measurable_effect": len(modsev) - len(measurable),
         "diagnose_pct": _pct(len(right), len(modsev)),
+        "diagnose_with_liquid_pressure_pct": _pct(
+            sum(1 for o in right if o.config in LIQUID_PRESSURE_POINT),
+            sum(1 for o in modsev if o.config in LIQUID_PRESSURE_POINT),
+        ),
+        "diagnose_without_liquid_pressure_pct": _pct(
+            sum(1 for o in right if o.config not in LIQUID_PRESSURE_POINT),
+            sum(1 for o in modsev if o.config not in LIQUID_PRESSURE_POINT),
+        ),
         "diagnose_pair_pct": _pct(len(right_or_pair), len(modsev)),
         "mild_detect_pct": _pct(
             sum(1 for o in faulted if o.grade == "mild" and o.detected_code),
@@ -313,6 +325,8 @@ def main() -> None:
         f"detect_measurable_pct={s['detect_measurable_pct']:.1f} "
         f"no_measurable_effect={s['no_measurable_effect']} "
         f"diagnose_pct={s['diagnose_pct']:.1f} diagnose_pair_pct={s['diagnose_pair_pct']:.1f} "
+        f"diagnose_with_liquid_pressure_pct={s['diagnose_with_liquid_pressure_pct']:.1f} "
+        f"diagnose_without_liquid_pressure_pct={s['diagnose_without_liquid_pressure_pct']:.1f} "
         f"mild_detect_pct={s['mild_detect_pct']:.1f} "
         f"median_ttd_operating_h={s['median_ttd_operating_h']:.1f} "
         f"median_ttd_wall_h={s['median_ttd_wall_h']:.1f} "
