@@ -54,7 +54,7 @@ import pandas as pd
 from scipy.special import ndtr
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
-from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS
+from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS, hourly_medians
 
 REFRIGERANT_FAULTS = (
     "low_charge",
@@ -220,15 +220,25 @@ def hourly_residuals(
     extrapolated : per-minute flag, sample judged within the extrapolation margin.
     widening : factor on eps and sigma for hours mostly extrapolated.
     """
-    hour_of = residuals.index.floor("1h")
-    counts = pd.Series(1, index=residuals.index).groupby(hour_of).sum()
-    counts = counts.reindex(hours, fill_value=0)
-    medians = residuals.groupby(hour_of).median().reindex(hours)
-    medians[counts < MIN_STEADY_PER_HOUR] = np.nan
+    slot = hours.get_indexer(residuals.index.floor("1h"))  # -1: outside the reported hours
+    rows = np.bincount(slot[slot >= 0], minlength=len(hours))
+    counts = pd.Series(rows, index=hours)
+    few = rows < MIN_STEADY_PER_HOUR
+    medians = pd.DataFrame(
+        {
+            name: np.where(few, np.nan, hourly_medians(values.to_numpy(float), slot, len(hours))[0])
+            for name, values in residuals.items()
+        },
+        index=hours,
+        columns=residuals.columns,
+    )
     if extrapolated is None:
         share = pd.Series(0.0, index=hours)
     else:
-        share = extrapolated.astype(float).groupby(hour_of).mean().reindex(hours, fill_value=0.0)
+        flags = extrapolated.to_numpy(dtype=float)[slot >= 0]
+        total = np.bincount(slot[slot >= 0], weights=flags, minlength=len(hours))
+        shares = np.divide(total, rows, out=np.zeros(len(hours)), where=rows > 0)
+        share = pd.Series(shares, index=hours, name=extrapolated.name)
     factor = np.where(share.to_numpy() > 0.5, widening, 1.0)[:, None]
     columns = list(medians.columns)
     eps = pd.DataFrame(
