@@ -91,17 +91,23 @@ def _policy_for(key: str) -> EventPolicy:
     return OFFLINE_POLICY if key.endswith(":offline") else SENSOR_POLICY
 
 
-def _family_status(findings: HourlyFindings) -> dict[str, pd.Series]:
-    """Series to follow: the refrigerant family combined, every sensor key on its own."""
-    status = findings.status
-    series = {}
-    codes = [c for c in REFRIGERANT_FAULTS if c in status]
-    if codes:
-        series[REFRIGERANT_FAMILY] = status[codes].max(axis=1, skipna=True)
-    for key in status.columns:
+def _family_status(findings: HourlyFindings, found_only: bool = False) -> dict[str, pd.Series]:
+    """Series to follow: the refrigerant family combined, every sensor key on its own
+    (``found_only``: only those found in some hour)."""
+    columns = findings.columns
+    arrays, names = {}, {}
+    codes = [c for c in REFRIGERANT_FAULTS if c in columns]
+    if codes:  # the largest status of the family's codes; NaN only where none was checked
+        arrays[REFRIGERANT_FAMILY] = np.fmax.reduce([columns[c] for c in codes])
+        names[REFRIGERANT_FAMILY] = None
+    for key, column in columns.items():
         if key not in REFRIGERANT_FAULTS:
-            series[key] = status[key]
-    return series
+            arrays[key], names[key] = column, key
+    return {
+        key: pd.Series(values, index=findings.hours, name=names[key])
+        for key, values in arrays.items()
+        if not found_only or (values == 1.0).any()
+    }
 
 
 def _found_at(findings: HourlyFindings, key: str, hour):
@@ -117,9 +123,7 @@ def _found_at(findings: HourlyFindings, key: str, hour):
 def derive_events(unit: str, findings: HourlyFindings) -> list[Event]:
     """Every event the hourly findings of one unit support, in order of start."""
     events = []
-    for key, status in _family_status(findings).items():
-        if not (status == 1.0).any():
-            continue
+    for key, status in _family_status(findings, found_only=True).items():
         events.extend(_episodes(unit, key, status.sort_index(), findings, _policy_for(key)))
     return sorted(events, key=lambda e: (e.start, e.code, e.detail))
 
