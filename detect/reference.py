@@ -97,9 +97,14 @@ class ReferenceModel:
     def predict_array(self, x: np.ndarray) -> np.ndarray:
         """Prediction per row of ``x``, one column per driver in ``self.drivers`` order."""
         z = (x - np.asarray(self.mean)) / np.asarray(self.scale)
-        powers = np.asarray(self.powers, dtype=float)
-        terms = np.prod(z[:, None, :] ** powers[None, :, :], axis=2)
-        return terms @ np.asarray(self.coef) + self.intercept
+        powers = np.asarray(self.powers, dtype=float)[None, :, :]
+        if powers.max(initial=0.0) <= 2.0:  # the same factors, with one pow per sample and driver
+            squares = z ** np.full(z.shape[1], 2.0)
+            linear = np.where(powers == 1.0, z[:, None, :], squares[:, None, :])
+            factors = np.where(powers == 0.0, 1.0, linear)
+        else:
+            factors = z[:, None, :] ** powers
+        return np.prod(factors, axis=2) @ np.asarray(self.coef) + self.intercept
 
     def envelope_position(self, drivers: pd.DataFrame) -> np.ndarray:
         """0 inside the training envelope, 1 within the extrapolation margin, 2 beyond (abstain)."""
