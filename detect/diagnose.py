@@ -406,7 +406,7 @@ def diagnose(
     found: dict = {code: {} for code in REFRIGERANT_FAULTS}
     drift_checked: dict = {p: [] for p in SINGLE_SENSOR_FEATURES.values()}
     drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
-    values = residuals.r.to_numpy(dtype=float)
+    values, columns = residuals.r.to_numpy(dtype=float), residuals.r.columns
     bands, spreads = residuals.eps.to_numpy(dtype=float), residuals.sigma.to_numpy(dtype=float)
     known = np.isfinite(values) & np.isfinite(bands) & np.isfinite(spreads)
     inside = np.where(known, sign_probabilities(values, bands, spreads)["0"], 1.0)
@@ -428,10 +428,11 @@ def diagnose(
                 if np.isfinite(values[i, column]):
                     drift_checked[point].append(hour)
             continue
-        r = residuals.r.loc[hour]
-        drop = [f for f in r.index if set(FEATURE_POINTS.get(f, ())) & bad]
-        r = r.drop(drop)
-        eps, sigma = residuals.eps.loc[hour, r.index], residuals.sigma.loc[hour, r.index]
+        keep = [j for j, f in enumerate(columns) if not set(FEATURE_POINTS.get(f, ())) & bad]
+        names = columns[keep]
+        r = pd.Series(values[i, keep], index=names, name=hour)
+        eps = pd.Series(bands[i, keep], index=names, name=hour)
+        sigma = pd.Series(spreads[i, keep], index=names, name=hour)
         result = classify(r, eps, sigma, device_class)
         checked.append(hour)
         for feature, point in SINGLE_SENSOR_FEATURES.items():
