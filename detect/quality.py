@@ -253,6 +253,7 @@ def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
     if status is not None:
         switches = np.abs(np.diff(status.to_numpy(dtype=float), prepend=np.nan)) > 0
     hour_index = hours.get_indexer(hour_of)
+    moved = None  # the same for every refrigerant-side point: computed once
     for role in points:
         values = grid[role].to_numpy(dtype=float)
         window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
@@ -263,7 +264,10 @@ def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
             lengths = _run_lengths(values)
         flat = lengths >= window
         if role not in AMBIENT_POINTS and role not in RUNNING_ONLY_POINTS and status is not None:
-            moved = (_window_sum(switches, window) > 0) | (_window_sum(run, window) >= window // 2)
+            if moved is None:
+                moved = (_window_sum(switches, window) > 0) | (
+                    _window_sum(run, window) >= window // 2
+                )
             flat &= moved
         present = ~np.isnan(values) & (hour_index >= 0)
         checked = np.zeros(len(hours), dtype=bool)
