@@ -21,6 +21,7 @@ temperatures are still moving and every feature looks faulty for a few minutes.
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 from rimewatch.physics import standstill
@@ -116,11 +117,12 @@ def steady(
     ok = run.copy()
     counts = running_mask.astype(float).rolling(window_minutes, min_periods=1).sum().to_numpy()
     ok &= counts >= min_samples
-    for name, limit in limits.items():
-        if name not in signals:
-            continue
-        values = signals[name].where(running_mask)
+    names = [name for name in limits if name in signals]
+    if names:  # one rolling pass over every judged signal (the same per-column computation)
+        values = signals[names].to_numpy(dtype=float)
+        values = pd.DataFrame(np.where(run[:, None], values, np.nan), index=signals.index)
         spread = values.rolling(window_minutes, min_periods=min_samples).std().to_numpy()
         present = values.notna().to_numpy()
-        ok &= present & (spread <= limit)
+        limit = np.array([limits[name] for name in names])
+        ok &= (present & (spread <= limit)).all(axis=1)
     return pd.Series(ok, index=signals.index, name="steady")
