@@ -270,10 +270,14 @@ def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) 
     dict with ``normal`` (probability every feature is inside its band), ``ranking`` [(code,
     share)] best first (empty when no class fits at all), ``deviating`` (features with P0 < 0.05).
     """
-    available = r.notna() & eps.notna() & sigma.notna()
-    r, eps, sigma = r[available], eps[available], sigma[available]
-    probabilities = sign_probabilities(r.to_numpy(), eps.to_numpy(), sigma.to_numpy())
-    names = list(r.index)
+    residual = r.to_numpy(dtype=float)
+    bands = (eps if eps.index.equals(r.index) else eps.reindex(r.index)).to_numpy(dtype=float)
+    spreads = (sigma if sigma.index.equals(r.index) else sigma.reindex(r.index)).to_numpy(
+        dtype=float
+    )
+    available = ~(np.isnan(residual) | np.isnan(bands) | np.isnan(spreads))
+    probabilities = sign_probabilities(residual[available], bands[available], spreads[available])
+    names = list(r.index[available])
     p = {sign: dict(zip(names, values, strict=True)) for sign, values in probabilities.items()}
     normal = float(np.prod(probabilities["0"])) if names else 1.0
     deviating = [n for n in names if p["0"][n] < 0.05]
