@@ -158,6 +158,14 @@ def _impact_inputs(prepared, steady_rows, residuals, baseline) -> diagnose.Impac
     )
 
 
+def _judged_hours(findings: HourlyFindings) -> np.ndarray:
+    """Hours with at least one key checked (status not NaN)."""
+    judged = np.zeros(len(findings.hours), dtype=bool)
+    for column in findings.columns.values():
+        judged |= ~np.isnan(column)
+    return judged
+
+
 def analyze_unit(
     frame: pd.DataFrame,
     unit: UnitInfo,
@@ -191,7 +199,7 @@ def analyze_unit(
         "minutes": len(prepared.grid),
         "running_minutes": int(prepared.running.sum()),
         "steady_minutes": int(prepared.steady.sum()),
-        "hours_judged": int(diagnosis.status.notna().any(axis=1).sum()),
+        "hours_judged": int(_judged_hours(diagnosis).sum()),
         "hours_extrapolated": int((hourly.extrapolated > 0.5).sum()),
         "mode": "baseline" if baseline is not None else "day-one rules",
     }
