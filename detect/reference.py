@@ -96,6 +96,15 @@ class ReferenceModel:
 
     def predict_array(self, x: np.ndarray) -> np.ndarray:
         """Prediction per row of ``x``, one column per driver in ``self.drivers`` order."""
+        return self.terms(x) @ np.asarray(self.coef) + self.intercept
+
+    @property
+    def terms_key(self) -> tuple:
+        """Models with equal keys have equal :meth:`terms` for the same drivers."""
+        return self.drivers, self.mean, self.scale, self.powers
+
+    def terms(self, x: np.ndarray) -> np.ndarray:
+        """Polynomial terms of the scaled drivers, one row per row of ``x``."""
         z = (x - np.asarray(self.mean)) / np.asarray(self.scale)
         powers = np.asarray(self.powers, dtype=float)[None, :, :]
         if powers.max(initial=0.0) <= 2.0:  # the same factors, with one pow per sample and driver
@@ -104,7 +113,7 @@ class ReferenceModel:
             factors = np.where(powers == 0.0, 1.0, linear)
         else:
             factors = z[:, None, :] ** powers
-        return np.prod(factors, axis=2) @ np.asarray(self.coef) + self.intercept
+        return np.prod(factors, axis=2)
 
     def envelope_position(self, drivers: pd.DataFrame) -> np.ndarray:
         """0 inside the training envelope, 1 within the extrapolation margin, 2 beyond (abstain)."""
@@ -252,6 +261,7 @@ class Baseline:
         out = {}
         position = np.zeros(len(features), dtype=int)
         arrays: dict[tuple[str, ...], np.ndarray] = {}  # models mostly share one driver set
+        terms: dict[tuple, np.ndarray] = {}  # ... and often one scaler
         for name, model in self.models.items():
             if name not in features:
                 continue
@@ -259,7 +269,10 @@ class Baseline:
             if x is None:
                 x = arrays[model.drivers] = features[list(model.drivers)].to_numpy(dtype=float)
             where = model.envelope_position_array(x)
-            predicted = model.predict_array(x)
+            shared = terms.get(model.terms_key)
+            if shared is None:
+                shared = terms[model.terms_key] = model.terms(x)
+            predicted = shared @ np.asarray(model.coef) + model.intercept
             out[name] = np.where(
                 where < 2, features[name].to_numpy(dtype=float) - predicted, np.nan
             )
