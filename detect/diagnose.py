@@ -54,7 +54,7 @@ import pandas as pd
 from scipy.special import ndtr
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
-from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS, hourly_medians
+from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS, hour_slots, hourly_medians
 
 REFRIGERANT_FAULTS = (
     "low_charge",
@@ -220,7 +220,7 @@ def hourly_residuals(
     extrapolated : per-minute flag, sample judged within the extrapolation margin.
     widening : factor on eps and sigma for hours mostly extrapolated.
     """
-    slot = hours.get_indexer(residuals.index.floor("1h"))  # -1: outside the reported hours
+    slot = hour_slots(residuals.index, hours)  # -1: outside the reported hours
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
     counts = pd.Series(rows, index=hours)
     few = rows < MIN_STEADY_PER_HOUR

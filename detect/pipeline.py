@@ -139,7 +139,7 @@ def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):
 def _impact_inputs(prepared, steady_rows, residuals, baseline) -> diagnose.ImpactInputs | None:
     if not all(name in baseline.models and name in residuals for name in IMPACT_FEATURES):
         return None
-    slot = prepared.hours.get_indexer(steady_rows.index.floor("1h"))
+    slot = quality.hour_slots(steady_rows.index, prepared.hours)
 
     def hourly_median(values: np.ndarray) -> pd.Series:
         medians, _ = quality.hourly_medians(values, slot, len(prepared.hours))

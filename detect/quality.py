@@ -154,6 +154,29 @@ def _hours(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
     return index.floor("1h")
 
 
+_HOUR_NS = 3_600_000_000_000
+
+
+def hour_slots(index: pd.DatetimeIndex, hours: pd.DatetimeIndex) -> np.ndarray:
+    """Position in ``hours`` of the UTC hour holding each instant of ``index``; -1 outside.
+
+    The same as ``hours.get_indexer(index.floor("1h"))``, by integer division when ``hours`` is a
+    regular hourly UTC range (as the analysis builds it).
+    """
+    regular = (
+        len(hours) > 0
+        and hours.freq == pd.offsets.Hour(1)
+        and str(hours.tz) == "UTC"
+        and str(index.tz) == "UTC"
+        and hours.as_unit("ns").asi8[0] % _HOUR_NS == 0
+    )
+    if not regular:
+        return hours.get_indexer(_hours(index))
+    slot = (index.as_unit("ns").asi8 - hours.as_unit("ns").asi8[0]) // _HOUR_NS
+    slot[(slot < 0) | (slot >= len(hours))] = -1
+    return slot.astype(np.intp)
+
+
 def check_quality(
     grid: pd.DataFrame,
     blanked: pd.DataFrame,
@@ -176,9 +199,8 @@ def check_quality(
         implausible-combination checks); optional.
     """
     out = HourlyFindings.empty(hours)
-    hour_of = _hours(grid.index)
     points = [c for c in grid.columns if c in SERVICE_RANGES and c != "compressor_status"]
-    slot = hours.get_indexer(hour_of)
+    slot = hour_slots(grid.index, hours)
     inside = slot >= 0
     bad_values = blanked[points].to_numpy()[inside]
     present_values = grid[points].notna().to_numpy()[inside] | bad_values
@@ -218,8 +240,8 @@ def check_quality(
             },
         )
 
-    _check_stuck(out, grid, running_mask, points, hours, hour_of)
-    _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of)
+    _check_stuck(out, grid, running_mask, points, hours, slot)
+    _check_standstill_drift(out, grid, standstill_mask, unit, hours, slot)
     if features is not None and steady_mask is not None:
         _check_implausible(out, features, steady_mask, hours)
     return out
@@ -247,12 +269,11 @@ def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
     return total[upper] - total[np.maximum(upper - window, 0)]
 
 
-def _check_stuck(out, grid, running_mask, points, hours, hour_of) -> None:
+def _check_stuck(out, grid, running_mask, points, hours, hour_index) -> None:
     status = grid.get("compressor_status")
     run = running_mask.to_numpy(dtype=bool)
     if status is not None:
         switches = np.abs(np.diff(status.to_numpy(dtype=float), prepend=np.nan)) > 0
-    hour_index = hours.get_indexer(hour_of)
     moved = None  # the same for every refrigerant-side point: computed once
     for role in points:
         values = grid[role].to_numpy(dtype=float)
@@ -288,7 +309,7 @@ def _coldest_surroundings(grid: pd.DataFrame) -> pd.Series | None:
     return pd.concat(temps, axis=1).min(axis=1, skipna=True)
 
 
-def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of) -> None:
+def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_index) -> None:
     pressures = [c for c in ("suction_pressure", "discharge_pressure") if c in grid]
     coldest = _coldest_surroundings(grid)
     if not pressures or coldest is None:
@@ -298,7 +319,7 @@ def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_of) ->
         for role in pressures:
             out.set(finding_key("sensor_fault", f"{role}:drift"), [], {})
         return
-    slot = hours.get_indexer(hour_of[still])
+    slot = hour_index[still]
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
     air, _ = hourly_medians(coldest.to_numpy(dtype=float)[still], slot, len(hours))
     judged = (rows >= MIN_STANDSTILL_SAMPLES) & ~np.isnan(air)
@@ -363,7 +384,7 @@ def hourly_medians(values: np.ndarray, slot: np.ndarray, n_hours: int):
 
 def _check_implausible(out, features, steady_mask, hours) -> None:
     steady = steady_mask.reindex(features.index, fill_value=False).to_numpy(dtype=bool)
-    slot = hours.get_indexer(_hours(features.index[steady]))
+    slot = hour_slots(features.index[steady], hours)
 
     def column(name):
         return features[name].to_numpy(dtype=float)[steady]
