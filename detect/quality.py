@@ -302,11 +302,13 @@ def _check_stuck(out, grid, running_mask, points, hours, hour_index) -> None:
         out.set(finding_key("sensor_fault", f"{role}:stuck"), checked, found)
 
 
-def _coldest_surroundings(grid: pd.DataFrame) -> pd.Series | None:
-    temps = [grid[c] for c in ("outdoor_air_temp", "return_air_temp", "box_temp") if c in grid]
+def _coldest_surroundings(grid: pd.DataFrame) -> np.ndarray | None:
+    """The lowest air temperature around the unit per sample; NaN where none is known."""
+    names = ("outdoor_air_temp", "return_air_temp", "box_temp")
+    temps = [grid[c].to_numpy(dtype=float) for c in names if c in grid]
     if not temps:
         return None
-    return pd.concat(temps, axis=1).min(axis=1, skipna=True)
+    return np.fmin.reduce(temps)
 
 
 def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_index) -> None:
@@ -321,7 +323,7 @@ def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_index)
         return
     slot = hour_index[still]
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
-    air, _ = hourly_medians(coldest.to_numpy(dtype=float)[still], slot, len(hours))
+    air, _ = hourly_medians(coldest[still], slot, len(hours))
     judged = (rows >= MIN_STANDSTILL_SAMPLES) & ~np.isnan(air)
     saturation = {}
     for role in pressures:
