@@ -89,8 +89,17 @@ def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prep
     grid, blanked = quality.blank_out_of_range(grid, unit)
     running, still = steady.running_and_standstill(grid)
     features = unit_features(grid, unit, running)
-    signals = features.join(grid[[c for c in ("suction_temp", "supply_air_temp") if c in grid]])
-    steady_mask = steady.steady(signals, running.loc[features.index])
+    # features hold the running samples: the steady test's signals and mask on those rows
+    run = running.to_numpy(dtype=bool)
+    signals = pd.DataFrame(
+        {
+            name: features[name].to_numpy() if name in features else grid[name].to_numpy()[run]
+            for name in steady.STEADY_LIMITS_K
+            if name in features or name in grid
+        },
+        index=features.index,
+    )
+    steady_mask = steady.steady(signals, pd.Series(True, index=features.index))
     if since is not None:
         keep = np.asarray(features.index >= pd.Timestamp(since))
         features, steady_mask = features[keep], steady_mask[keep]
