@@ -99,15 +99,21 @@ def _read_unit_frame(conn: Connection, unit_id: int, start_ms: int, end_ms: int)
 
 def _widen(columns: list[np.ndarray]) -> tuple[np.ndarray, pd.DatetimeIndex]:
     """(time [ms], value) pairs per point, each sorted by time -> wide values and their index."""
-    first = columns[0][:, 0]
-    if all(len(c) == len(first) and np.array_equal(c[:, 0], first) for c in columns):
-        wide = np.column_stack([c[:, 1] for c in columns])  # every point at the same instants
-        return wide, _utc_index(first.astype(np.int64))
-    stamps = np.unique(np.concatenate([c[:, 0] for c in columns]))
-    wide = np.full((len(stamps), len(columns)), np.nan)
-    for j, column in enumerate(columns):
-        wide[np.searchsorted(stamps, column[:, 0]), j] = column[:, 1]
+    stamps = max(columns, key=len)[:, 0]
+    places = [np.searchsorted(stamps, c[:, 0]) for c in columns]
+    if not all(_found(stamps, c[:, 0], at) for c, at in zip(columns, places, strict=True)):
+        stamps = np.unique(np.concatenate([c[:, 0] for c in columns]))
+        places = [np.searchsorted(stamps, c[:, 0]) for c in columns]
+    # usually every point reports at the longest one's instants: no union to build
+    wide = np.full((len(stamps), len(columns)), np.nan, order="F")
+    for j, (column, at) in enumerate(zip(columns, places, strict=True)):
+        wide[at, j] = column[:, 1]
     return wide, _utc_index(stamps.astype(np.int64))
+
+
+def _found(stamps: np.ndarray, times: np.ndarray, at: np.ndarray) -> bool:
+    """Whether every one of the sorted ``times`` is among ``stamps`` (``at`` = their places)."""
+    return len(at) == 0 or (at[-1] < len(stamps) and np.array_equal(stamps[at], times))
 
 
 def _utc_index(epoch_ms: np.ndarray) -> pd.DatetimeIndex:
