@@ -179,8 +179,6 @@ def simulate_unit_files(unit: DemoUnit, days: float, seed: int, out: Path):
         point["csv_column"] = f"{unit.unit_id}/{point['role']}"
 
     frame = display_frame(readings, unit.display_units, scenario.atmospheric_pressure)
-    # status as words: the CSV importer reads on/off words and 0/1, not "1.0"
-    frame["compressor_status"] = frame["compressor_status"].map({1.0: "on", 0.0: "off"})
     frame.columns = [f"{unit.unit_id}/{role}" for role in frame.columns]
     frame.index = frame.index.strftime("%Y-%m-%dT%H:%M:%SZ")
     frame.index.name = "timestamp"
