@@ -20,7 +20,7 @@ from rimewatch.detect.reference import Baseline
 from rimewatch.detect.unit import UnitInfo
 from rimewatch.ingest.units import atmospheric_pressure
 from rimewatch.store import events as event_store
-from rimewatch.store.readings import read_unit_frame, to_epoch_ms
+from rimewatch.store.readings import FrameReader, read_unit_frame, to_epoch_ms
 from rimewatch.store.schema import Site, Unit
 
 #: readings read before ``since`` so start-up exclusion and steady windows see the run-up
@@ -137,43 +137,47 @@ def analyze_stored_units(
     A unit whose data cannot be analysed gets ``error`` set; the others go on.
     """
     timings = timings or Timings()
-    results = []
-    for unit in units:
-        result = UnitResult(unit.info.key, unit.site)
-        started = time.perf_counter()
-        frame = read_unit_frame(engine, unit.id, since - WARM_UP, until)
-        try:
-            baseline = load_baseline(engine, unit)
-        except ValueError as exc:
-            result.error = f"stored baseline unusable ({exc}); run `rimewatch baseline` again"
-            results.append(result)
-            continue
+    with FrameReader(engine) as reader:
+        return [
+            _analyze_stored_unit(engine, reader, unit, since, until, tariff_per_kWh, timings)
+            for unit in units
+        ]
+
+
+def _analyze_stored_unit(
+    engine, reader: FrameReader, unit: StoredUnit, since, until, tariff_per_kWh, timings: Timings
+) -> UnitResult:
+    result = UnitResult(unit.info.key, unit.site)
+    started = time.perf_counter()
+    frame = reader.read(unit.id, since - WARM_UP, until)
+    try:
+        baseline = load_baseline(engine, unit)
+    except ValueError as exc:
+        result.error = f"stored baseline unusable ({exc}); run `rimewatch baseline` again"
+        return result
+    finally:
         timings.read_s += time.perf_counter() - started
-        started = time.perf_counter()
-        try:
-            analysis = pipeline.analyze_unit(
-                frame, unit.info, baseline, since, until, tariff_per_kWh
-            )
-        except ValueError as exc:
-            result.error = str(exc)
-            results.append(result)
-            timings.analyse_s += time.perf_counter() - started
-            continue
+    started = time.perf_counter()
+    try:
+        analysis = pipeline.analyze_unit(frame, unit.info, baseline, since, until, tariff_per_kWh)
+    except ValueError as exc:
+        result.error = str(exc)
+        return result
+    finally:
         timings.analyse_s += time.perf_counter() - started
-        started = time.perf_counter()
-        with engine.begin() as conn:
-            result.counts = event_store.merge_events(
-                conn, unit.id, [to_incoming(e) for e in analysis.events]
-            )
-            result.closed = _close_cleared(conn, unit, analysis)
-        timings.write_s += time.perf_counter() - started
-        result.mode, result.stats, result.events = (
-            analysis.stats["mode"],
-            analysis.stats,
-            analysis.events,
+    started = time.perf_counter()
+    with engine.begin() as conn:
+        result.counts = event_store.merge_events(
+            conn, unit.id, [to_incoming(e) for e in analysis.events]
         )
-        results.append(result)
-    return results
+        result.closed = _close_cleared(conn, unit, analysis)
+    timings.write_s += time.perf_counter() - started
+    result.mode, result.stats, result.events = (
+        analysis.stats["mode"],
+        analysis.stats,
+        analysis.events,
+    )
+    return result
 
 
 def fit_and_store_baseline(engine, unit: StoredUnit, start, end, now_ms: int) -> Baseline:

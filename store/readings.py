@@ -9,6 +9,8 @@ import numpy as np
 import pandas as pd
 from sqlalchemy import Connection, Engine, text
 
+from rimewatch.store.columnar import open_columnar
+
 _INSERT = (
     "INSERT INTO readings (point_id, ts_ms, value) VALUES ({0}, {0}, {0}) ON CONFLICT DO NOTHING"
 )
@@ -63,52 +65,121 @@ def read_unit_frame(target: Engine | Connection, unit_id: int, start, end) -> pd
     point role in point order (retired points included: their history stays), NaN where a point
     has no sample at that instant.
     """
-    start_ms, end_ms = to_epoch_ms(start), to_epoch_ms(end)
     if isinstance(target, Engine):
-        with target.connect() as conn:
-            return _read_unit_frame(conn, unit_id, start_ms, end_ms)
-    return _read_unit_frame(target, unit_id, start_ms, end_ms)
+        with FrameReader(target) as reader:
+            return reader.read(unit_id, start, end)
+    # a caller's connection may hold uncommitted rows: read through it
+    start_ms, end_ms = to_epoch_ms(start), to_epoch_ms(end)
+    points = _points(target, unit_id)
+    return _frame(points, _dbapi_columns(target, points, start_ms, end_ms))
 
 
-def _read_unit_frame(conn: Connection, unit_id: int, start_ms: int, end_ms: int) -> pd.DataFrame:
-    points = conn.execute(
-        text("SELECT id, role FROM points WHERE unit_id = :unit_id ORDER BY id"),
-        {"unit_id": unit_id},
-    ).all()
-    if not points:
-        return pd.DataFrame(index=_utc_index(np.empty(0, dtype=np.int64)))
+class FrameReader:
+    """Reads units' wide frames (as :func:`read_unit_frame`) one after another, for many units.
+
+    Where an ADBC driver serves the database (SQLite files, PostgreSQL) the readings arrive as
+    Arrow columns, with no Python object per reading (:mod:`rimewatch.store.columnar`); else
+    through the DB-API driver. Use as a context manager; it holds one extra connection.
+    """
+
+    def __init__(self, engine: Engine) -> None:
+        self._engine = engine
+        self._columnar = open_columnar(engine)
+
+    def __enter__(self) -> FrameReader:
+        return self
+
+    def __exit__(self, *_exc) -> None:
+        self.close()
+
+    @property
+    def columnar(self) -> bool:
+        """Whether readings arrive through the ADBC driver."""
+        return self._columnar is not None
+
+    def close(self) -> None:
+        if self._columnar is not None:
+            self._columnar.close()
+            self._columnar = None
+
+    def read(self, unit_id: int, start, end) -> pd.DataFrame:
+        start_ms, end_ms = to_epoch_ms(start), to_epoch_ms(end)
+        with self._engine.connect() as conn:
+            points = _points(conn, unit_id)
+            if self._columnar is None:
+                return _frame(points, _dbapi_columns(conn, points, start_ms, end_ms))
+        columns = [
+            self._columnar.fetch(
+                _SELECT_POINT.format(int(point_id), int(start_ms), int(end_ms)),
+                (np.int64, np.float64),
+            )
+            for point_id, _ in points
+        ]
+        return _frame(points, columns)
+
+
+_SELECT_POINT = (
+    "SELECT ts_ms, value FROM readings WHERE point_id = {0} AND ts_ms >= {1} AND ts_ms < {2} "
+    "ORDER BY ts_ms"
+)
+
+
+def _points(conn: Connection, unit_id: int) -> list[tuple[int, str]]:
+    return [
+        (int(point_id), role)
+        for point_id, role in conn.execute(
+            text("SELECT id, role FROM points WHERE unit_id = :unit_id ORDER BY id"),
+            {"unit_id": unit_id},
+        )
+    ]
+
+
+def _dbapi_columns(
+    conn: Connection, points: list[tuple[int, str]], start_ms: int, end_ms: int
+) -> list[list[np.ndarray]]:
+    """(times [ms], values) of each point through the DB-API driver's own cursor."""
     marker = "?" if conn.dialect.paramstyle == "qmark" else "%s"
-    sql = (
-        f"SELECT ts_ms, value FROM readings WHERE point_id = {marker} "
-        f"AND ts_ms >= {marker} AND ts_ms < {marker} ORDER BY ts_ms"
-    )
-    # One query per point, in primary-key order, on the driver's own cursor: plain tuples
-    # flattened straight into numpy (no per-row Row objects, no nested-list conversion).
+    sql = _SELECT_POINT.format(marker, marker, marker)
     cursor = conn.connection.dbapi_connection.cursor()
     try:
         columns = []
         for point_id, _ in points:
             cursor.execute(sql, (point_id, start_ms, end_ms))
             rows = cursor.fetchall()
-            flat = itertools.chain.from_iterable(rows)
-            columns.append(np.fromiter(flat, np.float64, count=2 * len(rows)).reshape(-1, 2))
+            flat = itertools.chain.from_iterable(rows)  # no per-row Row objects
+            pairs = np.fromiter(flat, np.float64, count=2 * len(rows)).reshape(-1, 2)
+            columns.append([pairs[:, 0].astype(np.int64), pairs[:, 1]])
     finally:
         cursor.close()
-    return pd.DataFrame(*_widen(columns), columns=[p[1] for p in points])
+    return columns
 
 
-def _widen(columns: list[np.ndarray]) -> tuple[np.ndarray, pd.DatetimeIndex]:
-    """(time [ms], value) pairs per point, each sorted by time -> wide values and their index."""
-    stamps = max(columns, key=len)[:, 0]
-    places = [np.searchsorted(stamps, c[:, 0]) for c in columns]
-    if not all(_found(stamps, c[:, 0], at) for c, at in zip(columns, places, strict=True)):
-        stamps = np.unique(np.concatenate([c[:, 0] for c in columns]))
-        places = [np.searchsorted(stamps, c[:, 0]) for c in columns]
+def _frame(points: list[tuple[int, str]], columns: list[list[np.ndarray]]) -> pd.DataFrame:
+    if not points:
+        return pd.DataFrame(index=_utc_index(np.empty(0, dtype=np.int64)))
+    return pd.DataFrame(*_widen(columns), columns=[role for _, role in points])
+
+
+def _widen(columns: list[list[np.ndarray]]) -> tuple[np.ndarray, pd.DatetimeIndex]:
+    """(times [ms], values) per point, each sorted by time -> wide values and their index."""
+    stamps = max((times for times, _ in columns), key=len)
+    places = [np.searchsorted(stamps, times) for times, _ in columns]
+    if not all(_found(stamps, c[0], at) for c, at in zip(columns, places, strict=True)):
+        stamps = _sorted_union([times for times, _ in columns])
+        places = [np.searchsorted(stamps, times) for times, _ in columns]
     # usually every point reports at the longest one's instants: no union to build
     wide = np.full((len(stamps), len(columns)), np.nan, order="F")
-    for j, (column, at) in enumerate(zip(columns, places, strict=True)):
-        wide[at, j] = column[:, 1]
-    return wide, _utc_index(stamps.astype(np.int64))
+    for j, ((_, values), at) in enumerate(zip(columns, places, strict=True)):
+        wide[at, j] = values
+    return wide, _utc_index(stamps)
+
+
+def _sorted_union(runs: list[np.ndarray]) -> np.ndarray:
+    """The distinct values of sorted arrays, sorted (a stable sort merges sorted runs fast)."""
+    merged = np.sort(np.concatenate(runs), kind="stable")
+    first = np.ones(len(merged), dtype=bool)
+    np.not_equal(merged[1:], merged[:-1], out=first[1:])
+    return merged[first]
 
 
 def _found(stamps: np.ndarray, times: np.ndarray, at: np.ndarray) -> bool:
