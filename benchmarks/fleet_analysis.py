@@ -10,10 +10,11 @@ the site file path (``apply_site``) and ``write_readings``: 14 points x 1,620 mi
 Timed, in a fresh process (so its peak memory is the analysis's own): ``analyze_stored_units``
 over all units with ``--workers`` processes, split into reading (store -> wide frame), physics
 (cycle states and virtual sensors, ``unit_features``), detection (everything else of the
-analysis) and writing events. Beside it, the same run's floor for reading: one raw sqlite3
-SELECT of all the judged readings. The workers' CPU seconds and the load average before the run
-are printed too: on a shared machine the CPU seconds / workers is the wall clock the run would take
-alone.
+analysis) and writing events. Beside it, in the same run, two reads of all the judged readings:
+one raw sqlite3 SELECT (a Python tuple per row: the old read's floor) and the store's ADBC read
+(Arrow columns, no Python object per reading). The workers' CPU seconds and the load average
+before the run are printed too: on a shared machine the CPU seconds / workers is the wall clock
+the run would take alone.
 
 Usage: .venv/bin/python benchmarks/fleet_analysis.py [--units 1000] [--workers 2] [--db PATH]
 (``--db`` keeps the prepared file for later runs; an existing file with the right units is reused).
@@ -227,6 +228,29 @@ def raw_read_floor(path: Path) -> tuple[float, int]:
     return time.perf_counter() - began, count
 
 
+def adbc_read(path: Path) -> tuple[float, int]:
+    """The same readings point by point through the store's ADBC path (what the analysis uses)."""
+    from rimewatch.store import connect
+    from rimewatch.store.columnar import open_columnar
+
+    start_ms = int((pd.Timestamp(DAY) - pd.Timedelta(WARM_UP)).timestamp() * 1000)
+    end_ms = int(pd.Timestamp(UNTIL).timestamp() * 1000)
+    with sqlite3.connect(path) as conn:
+        points = [p for (p,) in conn.execute("SELECT id FROM points ORDER BY id")]
+    began = time.perf_counter()
+    reader = open_columnar(connect(f"sqlite:///{path}"))
+    count = 0
+    for point in points:
+        times, _ = reader.fetch(
+            f"SELECT ts_ms, value FROM readings WHERE point_id = {point} "
+            f"AND ts_ms >= {start_ms} AND ts_ms < {end_ms} ORDER BY ts_ms",
+            (np.int64, np.float64),
+        )
+        count += len(times)
+    reader.close()
+    return time.perf_counter() - began, count
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--units", type=int, default=1000)
@@ -262,6 +286,7 @@ def main() -> None:
         raise SystemExit("the timed analysis failed")
     r = json.loads(out.stdout.strip().splitlines()[-1])
     floor_s, floor_rows = raw_read_floor(path)
+    adbc_s, adbc_rows = adbc_read(path)
     cpu = r["read_s"] + r["physics_s"] + r["detection_s"] + r["write_s"]
     print(f"\n{r['units']} units x 1 day (+3 h warm-up), {args.workers} worker processes")
     print(f"  wall clock                      {r['wall_s']:8.1f} s   (target < 15 s)")
@@ -277,6 +302,7 @@ def main() -> None:
         f"  load average before the run     {r['load_before']:8.2f}   (other work shares the cores)"
     )
     print(f"  baseline: raw sqlite3 SELECT of the same {floor_rows:,} readings: {floor_s:.1f} s")
+    print(f"  the store's ADBC read of the same {adbc_rows:,} readings: {adbc_s:.1f} s")
     print(
         f"  events written {r['events']}; peak RSS {r['peak_rss_mb_per_worker']:.0f} MB per "
         f"worker, {r['peak_rss_mb_total']:.0f} MB all processes"
@@ -287,6 +313,7 @@ def main() -> None:
         f"RESULT units={r['units']} wall_s={r['wall_s']:.1f} read_s={r['read_s']:.1f} "
         f"physics_s={r['physics_s']:.1f} detection_s={r['detection_s']:.1f} "
         f"write_s={r['write_s']:.1f} cpu_s={r['cpu_s']:.1f} raw_select_s={floor_s:.1f} "
+        f"adbc_read_s={adbc_s:.1f} "
         f"events={r['events']} "
         f"peak_rss_mb={r['peak_rss_mb_total']:.0f} load_before={r['load_before']:.1f} "
         f"target_wall_s=15"
