@@ -38,6 +38,11 @@ TRANSIENT = "transient"
 UNKNOWN = "unknown"
 
 
+#: Labels by state code (the index), see :func:`operating_state`.
+_LABELS = pd.array([TRANSIENT, UNKNOWN, RUNNING, STANDSTILL], dtype="str")
+_TRANSIENT_CODE, _UNKNOWN_CODE, _RUNNING_CODE, _STANDSTILL_CODE = range(4)
+
+
 def compressor_on(frame: pd.DataFrame, pressure_columns=None) -> pd.Series:
     """Whether the compressor runs at each sample: 1.0 on, 0.0 off, NaN unknown.
 
@@ -47,17 +52,52 @@ def compressor_on(frame: pd.DataFrame, pressure_columns=None) -> pd.Series:
     pressure_columns : names of pressure columns to use when there is no status; default: every
         column whose name ends in ``_pressure``.
     """
-    if "compressor_status" in frame and frame["compressor_status"].notna().any():
-        status = frame["compressor_status"].astype(float)
-        return status.where(status.isna(), (status >= 0.5).astype(float))
+    status = _status(frame)
+    if status is not None:
+        return pd.Series(_on_from_status(status), index=frame.index, name="compressor_status")
+    return pd.Series(_on_from_pressures(frame, pressure_columns), index=frame.index)
+
+
+def _compressor_on(frame: pd.DataFrame, pressure_columns) -> np.ndarray:
+    """:func:`compressor_on` as an array."""
+    status = _status(frame)
+    if status is not None:
+        return _on_from_status(status)
+    return _on_from_pressures(frame, pressure_columns)
+
+
+def _status(frame: pd.DataFrame) -> np.ndarray | None:
+    """The ``compressor_status`` readings [-] as floats; None when the point has no reading."""
+    if "compressor_status" not in frame:
+        return None
+    status = frame["compressor_status"].to_numpy(dtype=float, na_value=np.nan)
+    return None if np.isnan(status).all() else status
+
+
+def _on_from_status(status: np.ndarray) -> np.ndarray:
+    """1.0 where the status is at least 0.5, 0.0 below, NaN where it is missing."""
+    return np.where(np.isnan(status), np.nan, (status >= 0.5).astype(float))
+
+
+def _on_from_pressures(frame: pd.DataFrame, pressure_columns) -> np.ndarray:
+    """1.0 where the highest over the lowest positive pressure [Pa] reaches
+    ``CONVERGED_PRESSURE_RATIO``, 0.0 below, NaN with fewer than two positive pressures."""
     if pressure_columns is None:
         pressure_columns = [c for c in frame.columns if str(c).endswith("_pressure")]
-    pressures = frame[list(pressure_columns)].astype(float)
-    pressures = pressures.where(pressures > 0)
-    known = pressures.notna().sum(axis=1) >= 2
-    ratio = pressures.max(axis=1) / pressures.min(axis=1)
-    on = (ratio >= CONVERGED_PRESSURE_RATIO).astype(float)
-    return on.where(known)
+    pressure_columns = list(pressure_columns)
+    on = np.full(len(frame), np.nan)
+    if not pressure_columns:
+        return on
+    pressures = np.column_stack(
+        [frame[name].to_numpy(dtype=float, na_value=np.nan) for name in pressure_columns]
+    )
+    with np.errstate(invalid="ignore"):
+        pressures[~(pressures > 0)] = np.nan
+    known = np.count_nonzero(~np.isnan(pressures), axis=1) >= 2
+    # fmax/fmin skip NaN, as pandas' row max/min do
+    ratio = np.fmax.reduce(pressures, axis=1)[known] / np.fmin.reduce(pressures, axis=1)[known]
+    on[known] = (ratio >= CONVERGED_PRESSURE_RATIO).astype(float)
+    return on
 
 
 def operating_state(
@@ -85,22 +125,31 @@ def operating_state(
         raise ValueError("operating_state needs a frame indexed by time (DatetimeIndex)")
     if not frame.index.is_monotonic_increasing:
         raise ValueError("operating_state needs a frame sorted by time")
-    on = compressor_on(frame, pressure_columns)
-    seconds = (frame.index - frame.index[0]) / pd.Timedelta("1s")
-    seconds = np.asarray(seconds, dtype=float)
-    state = on.to_numpy(dtype=float, na_value=np.nan)
+    state = _compressor_on(frame, pressure_columns)
+    elapsed = _elapsed_in_state(_seconds(frame.index), state, max_gap_s)
+    # The first segment (and any after a gap) starts unseen: its elapsed time is a lower bound.
+    codes = np.full(len(frame), _TRANSIENT_CODE, dtype=np.intp)
+    codes[np.isnan(state)] = _UNKNOWN_CODE
+    codes[(state == 1.0) & (elapsed >= min_running_s)] = _RUNNING_CODE
+    codes[(state == 0.0) & (elapsed >= min_standstill_s)] = _STANDSTILL_CODE
+    return pd.Series(_LABELS.take(codes), index=frame.index, name="operating_state", copy=False)
+
+
+def _seconds(index: pd.DatetimeIndex) -> np.ndarray:
+    """Seconds since the first timestamp (the index holds no NaT: it is sorted)."""
+    ticks = index.asi8
+    return (ticks - ticks[0]) / (np.timedelta64(1, "s") / np.timedelta64(1, index.unit))
+
+
+def _elapsed_in_state(seconds: np.ndarray, state: np.ndarray, max_gap_s: float) -> np.ndarray:
+    """Seconds since the state (1.0, 0.0 or NaN) last changed or the data last had a gap longer
+    than ``max_gap_s`` [s]; from the first sample when neither happened."""
     previous = np.concatenate(([np.nan], state[:-1]))
     gap = np.concatenate(([np.inf], np.diff(seconds))) > max_gap_s
     changed = gap | ~((state == previous) | (np.isnan(state) & np.isnan(previous)))
-    segment = np.cumsum(changed)
-    segment_start = pd.Series(seconds).groupby(segment).transform("first").to_numpy()
-    elapsed = seconds - segment_start
-    # The first segment (and any after a gap) starts unseen: its elapsed time is a lower bound.
-    labels = np.full(len(frame), TRANSIENT, dtype=object)
-    labels[np.isnan(state)] = UNKNOWN
-    labels[(state == 1.0) & (elapsed >= min_running_s)] = RUNNING
-    labels[(state == 0.0) & (elapsed >= min_standstill_s)] = STANDSTILL
-    return pd.Series(labels, index=frame.index, name="operating_state", dtype="str")
+    # the samples are contiguous in time: a segment starts at its last change
+    last_change = np.maximum.accumulate(np.where(changed, np.arange(len(state)), 0))
+    return seconds - seconds[last_change]
 
 
 def periods(states: pd.Series, label: str) -> list[tuple[pd.Timestamp, pd.Timestamp]]:
