@@ -8,7 +8,11 @@ benchmarks/fleet_analysis.py.
 from __future__ import annotations
 
 import json
+import math
+import multiprocessing
+import os
 import time
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
 import pandas as pd
@@ -19,6 +23,7 @@ from rimewatch.detect import pipeline
 from rimewatch.detect.reference import Baseline
 from rimewatch.detect.unit import UnitInfo
 from rimewatch.ingest.units import atmospheric_pressure
+from rimewatch.store import connect
 from rimewatch.store import events as event_store
 from rimewatch.store.readings import FrameReader, read_unit_frame, to_epoch_ms
 from rimewatch.store.schema import Site, Unit
@@ -131,17 +136,65 @@ def analyze_stored_units(
     until: pd.Timestamp,
     tariff_per_kWh: float = pipeline.DEFAULT_TARIFF_PER_KWH,
     timings: Timings | None = None,
+    workers: int = 1,
 ) -> list[UnitResult]:
     """Analyse each unit over [since, until) and merge its events into the store.
 
-    A unit whose data cannot be analysed gets ``error`` set; the others go on.
+    A unit whose data cannot be analysed gets ``error`` set; the others go on. With ``workers`` >
+    1 the units are shared out over that many processes (each with its own connections); the
+    results come back in the order of ``units``.
     """
-    timings = timings or Timings()
+    timings = timings if timings is not None else Timings()
+    workers = min(workers, len(units))
+    if workers > 1:
+        return _analyze_in_processes(engine, units, since, until, tariff_per_kWh, timings, workers)
     with FrameReader(engine) as reader:
         return [
             _analyze_stored_unit(engine, reader, unit, since, until, tariff_per_kWh, timings)
             for unit in units
         ]
+
+
+def default_workers(unit_count: int) -> int:
+    """Worker processes for ``unit_count`` units: one per CPU, and one per 25 units at most."""
+    return max(1, min(os.cpu_count() or 1, math.ceil(unit_count / 25)))
+
+
+def analyze_share(url: str, units, since, until, tariff_per_kWh) -> tuple[list, Timings]:
+    """One worker's part of :func:`analyze_stored_units`, on its own engine."""
+    engine = connect(url, run_migrations=False)
+    timings = Timings()
+    try:
+        return analyze_stored_units(engine, units, since, until, tariff_per_kWh, timings), timings
+    finally:
+        engine.dispose()
+
+
+def _analyze_in_processes(engine, units, since, until, tariff_per_kWh, timings, workers):
+    url = engine.url.render_as_string(hide_password=False)
+    engine.dispose()  # no open connection is carried into the workers
+    shares = [units[i::workers] for i in range(workers)]
+    # fork: the workers start with the modules and property tables already imported
+    methods = multiprocessing.get_all_start_methods()
+    context = multiprocessing.get_context("fork" if "fork" in methods else None)
+    with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+        parts = list(
+            pool.map(
+                analyze_share,
+                [url] * workers,
+                shares,
+                [since] * workers,
+                [until] * workers,
+                [tariff_per_kWh] * workers,
+            )
+        )
+    results: list[UnitResult | None] = [None] * len(units)
+    for i, (share_results, share_timings) in enumerate(parts):
+        results[i::workers] = share_results
+        timings.read_s += share_timings.read_s
+        timings.analyse_s += share_timings.analyse_s
+        timings.write_s += share_timings.write_s
+    return results
 
 
 def _analyze_stored_unit(

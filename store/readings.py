@@ -108,14 +108,8 @@ class FrameReader:
             points = _points(conn, unit_id)
             if self._columnar is None:
                 return _frame(points, _dbapi_columns(conn, points, start_ms, end_ms))
-        columns = [
-            self._columnar.fetch(
-                _SELECT_POINT.format(int(point_id), int(start_ms), int(end_ms)),
-                (np.int64, np.float64),
-            )
-            for point_id, _ in points
-        ]
-        return _frame(points, columns)
+        queries = [_SELECT_POINT.format(int(p), int(start_ms), int(end_ms)) for p, _ in points]
+        return _frame(points, self._columnar.fetch_many(queries, (np.int64, np.float64)))
 
 
 _SELECT_POINT = (

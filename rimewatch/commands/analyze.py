@@ -22,9 +22,15 @@ from rimewatch.commands._store_common import db_option, open_database
 @click.option(
     "--until", default=None, help="End of the period, exclusive (ISO 8601; default: now)."
 )
+@click.option(
+    "--workers",
+    type=click.IntRange(min=1),
+    default=None,
+    help="Processes sharing the units (default: one per CPU, at most one per 25 units).",
+)
 @tariff_option
 @db_option
-def analyze(unit_key, site_name, since, until, tariff, db_url):
+def analyze(unit_key, site_name, since, until, workers, tariff, db_url):
     """Detect and diagnose faults in each unit's stored readings over a period.
 
     Runs the sensor checks, then the diagnosis: against the unit's fault-free baseline when one
@@ -40,7 +46,7 @@ def analyze(unit_key, site_name, since, until, tariff, db_url):
     """
     import pandas as pd
 
-    from rimewatch.detection import analyze_stored_units
+    from rimewatch.detection import analyze_stored_units, default_workers
 
     end = parse_time(until, "--until", pd.Timestamp.now(tz="UTC").floor("1min"))
     start = parse_time(since, "--since", end - pd.Timedelta("24h"))
@@ -48,7 +54,10 @@ def analyze(unit_key, site_name, since, until, tariff, db_url):
         raise click.ClickException(f"--since {start} must be before --until {end}")
     engine = open_database(db_url)
     units = select_units(engine, unit_key, site_name)
-    results = analyze_stored_units(engine, units, start, end, resolve_tariff(tariff))
+    workers = workers or default_workers(len(units))
+    results = analyze_stored_units(
+        engine, units, start, end, resolve_tariff(tariff), workers=workers
+    )
     failures = 0
     for result in results:
         name = f"{result.site}/{result.unit}"

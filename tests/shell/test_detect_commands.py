@@ -36,13 +36,13 @@ UNITS = {  # role -> unit string of the point (values are written in SI)
 }
 
 
-def _site_file(tmp_path: Path) -> Path:
+def _site_file(tmp_path: Path, unit_ids=("rtu-3",)) -> Path:
     spec, unit = sized("rooftop_unit")
     site = {
         "site": {"name": "Quayside Cold Store", "timezone": "UTC", "elevation_m": 0},
         "units": [
             {
-                "id": "rtu-3",
+                "id": unit_id,
                 "name": "Dispatch hall rooftop unit",
                 "kind": "rooftop_unit",
                 "refrigerant": spec.refrigerant,
@@ -53,8 +53,12 @@ def _site_file(tmp_path: Path) -> Path:
                 "condenser_airflow_m3_s": spec.condenser_airflow_m3_s,
                 "evaporator_airflow_m3_s": spec.evaporator_airflow_m3_s,
                 "compressor_map": unit.compressor_map.to_dict(),
-                "points": [{"role": r, "unit": u, "csv_column": r} for r, u in UNITS.items()],
+                "points": [
+                    {"role": r, "unit": u, "mqtt_topic": f"quayside/{unit_id}/{r}"}
+                    for r, u in UNITS.items()
+                ],
             }
+            for unit_id in unit_ids
         ],
     }
     path = tmp_path / "site.yaml"
@@ -62,11 +66,11 @@ def _site_file(tmp_path: Path) -> Path:
     return path
 
 
-def _store(db_url: str, frame: pd.DataFrame) -> None:
+def _store(db_url: str, frame: pd.DataFrame, unit_id: str = "rtu-3") -> None:
     from rimewatch.store import active_points, connect, write_readings
 
     engine = connect(db_url)
-    ids = {p.role: p.id for p in active_points(engine)}
+    ids = {p.role: p.id for p in active_points(engine) if p.unit_key == unit_id}
     ts_ms = (frame.index.as_unit("ms").asi8).astype(np.int64)
     rows = []
     for role, point_id in ids.items():
@@ -200,3 +204,41 @@ def test_bad_input_is_one_clear_line(database):
     )
     assert result.exit_code != 0 and "no readings" in result.output
     assert "Traceback" not in result.output
+
+
+def test_analysis_shared_over_worker_processes_writes_what_one_process_writes(tmp_path):
+    """Three units (two fouled condensers, one fault-free), analysed serially and by 2 workers."""
+    from rimewatch.store import connect
+    from rimewatch.store.events import EventHistory, EventRecord
+
+    unit_ids = ("rtu-1", "rtu-2", "rtu-3")
+    fouled = readings("rooftop_unit", (("condenser_fouling", 0.4),))
+    clean = readings("rooftop_unit")
+    snapshots = {}
+    for workers in ("1", "2"):
+        db_url = f"sqlite:///{tmp_path / f'fleet-{workers}.db'}"
+        folder = tmp_path / workers
+        folder.mkdir()
+        assert _run("apply", str(_site_file(folder, unit_ids)), "--db", db_url).exit_code == 0
+        for unit_id, frame in zip(unit_ids, (fouled, clean, fouled), strict=True):
+            _store(db_url, frame, unit_id)
+        for unit_id in unit_ids:
+            fitted = _run("baseline", unit_id, "--from", _iso(START), "--to", _iso(ONSET),
+                          "--db", db_url)  # fmt: skip
+            assert fitted.exit_code == 0, fitted.output
+        result = _run("analyze", "--since", _iso(ONSET), "--until", _iso(END),
+                      "--workers", workers, "--db", db_url)  # fmt: skip
+        assert result.exit_code == 0, result.output
+        # units reported in site order whatever worker analysed them
+        order = [line.split(":")[0] for line in result.output.splitlines() if "steady of" in line]
+        assert order == [f"Quayside Cold Store/{u}" for u in unit_ids]
+        with connect(db_url).connect() as conn:
+            events = conn.execute(
+                select(EventRecord.__table__).order_by(EventRecord.unit_id, EventRecord.code)
+            ).all()
+            history = conn.execute(select(func.count()).select_from(EventHistory)).scalar()
+        snapshots[workers] = ([tuple(row)[1:] for row in events], history)
+    serial, shared = snapshots["1"], snapshots["2"]
+    fouling_units = {row[0] for row in serial[0] if row[1] == "condenser_fouling"}
+    assert len(fouling_units) == 2  # rtu-1 and rtu-3, not the fault-free rtu-2
+    assert sorted(shared[0]) == sorted(serial[0]) and shared[1] == serial[1]

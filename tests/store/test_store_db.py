@@ -230,3 +230,21 @@ def test_readings_need_an_existing_point(db_url):
     engine = connect(db_url)
     with pytest.raises(Exception, match=r"(?i)foreign key"):
         write_readings(engine, [(999, T0_MS, 1.0)])
+
+
+def test_a_failed_read_in_the_reader_process_is_a_clear_error_and_it_serves_on(tmp_path):
+    from rimewatch.store.columnar import ReaderProcess
+
+    engine = connect(f"sqlite:///{tmp_path / 'r.db'}")
+    _, _, (p_suc, _) = _unit_with_points(engine)
+    write_readings(engine, [(p_suc, T0_MS, 1e5)])
+    reader = ReaderProcess(tmp_path / "r.db")
+    try:
+        with pytest.raises(RuntimeError, match="no such table"):
+            reader.fetch_many(["SELECT ts_ms, value FROM no_table"], (np.int64, np.float64))
+        [(times, values)] = reader.fetch_many(
+            ["SELECT ts_ms, value FROM readings"], (np.int64, np.float64)
+        )
+        assert times.tolist() == [T0_MS] and values.tolist() == [1e5]
+    finally:
+        reader.close()
