@@ -151,6 +151,11 @@ def prepare(path: Path, n_units: int) -> None:
     )
 
 
+def _children_cpu_s() -> float:
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
 def _analyse_share(args):
     path, keys = args
     from rimewatch.detect import pipeline
@@ -171,13 +176,13 @@ def _analyse_share(args):
     engine = connect(f"sqlite:///{path}")
     units = [u for u in stored_units(engine, site=SITE) if u.info.key in keys]
     timings = Timings()
-    cpu_started = time.process_time()
+    cpu_started = time.process_time() + _children_cpu_s()
     results = analyze_stored_units(
         engine, units, pd.Timestamp(DAY), pd.Timestamp(UNTIL), timings=timings
     )
     errors = [r.error for r in results if r.error]
     events = sum(len(r.events) for r in results)
-    cpu_s = time.process_time() - cpu_started
+    cpu_s = time.process_time() + _children_cpu_s() - cpu_started  # with the reader process
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     return timings.read_s, physics_s[0], timings.analyse_s - physics_s[0], timings.write_s, \
         events, errors, rss_kb, cpu_s  # fmt: skip
