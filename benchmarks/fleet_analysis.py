@@ -183,7 +183,9 @@ def _analyse_share(args):
     errors = [r.error for r in results if r.error]
     events = sum(len(r.events) for r in results)
     cpu_s = time.process_time() + _children_cpu_s() - cpu_started  # with the reader process
+    # the worker and its reader process (counted whole: their shared pages twice)
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    rss_kb += resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     return timings.read_s, physics_s[0], timings.analyse_s - physics_s[0], timings.write_s, \
         events, errors, rss_kb, cpu_s  # fmt: skip
 
@@ -310,7 +312,7 @@ def main() -> None:
     print(f"  the store's ADBC read of the same {adbc_rows:,} readings: {adbc_s:.1f} s")
     print(
         f"  events written {r['events']}; peak RSS {r['peak_rss_mb_per_worker']:.0f} MB per "
-        f"worker, {r['peak_rss_mb_total']:.0f} MB all processes"
+        f"worker with its reader, {r['peak_rss_mb_total']:.0f} MB all processes"
     )
     if r["errors"]:
         print("  errors:", r["errors"])
