@@ -121,17 +121,7 @@ class ReferenceModel:
 
     def envelope_position_array(self, x: np.ndarray) -> np.ndarray:
         """:meth:`envelope_position` of ``x``, one column per driver in ``self.drivers`` order."""
-        position = np.zeros(len(x), dtype=int)
-        for j, name in enumerate(self.drivers):
-            low, high = self.envelope[name]
-            margin = max(
-                EXTRAPOLATION_MARGIN_SHARE * (high - low), EXTRAPOLATION_MARGIN.get(name, 0.0)
-            )
-            values = x[:, j]
-            outside = (values < low) | (values > high)
-            beyond = (values < low - margin) | (values > high + margin) | ~np.isfinite(values)
-            position = np.maximum(position, np.where(beyond, 2, np.where(outside, 1, 0)))
-        return position
+        return envelope_positions((self,), x)[:, 0]
 
     def to_dict(self) -> dict:
         return {
@@ -177,6 +167,23 @@ class ReferenceModel:
         if len(model.coef) != len(powers) or set(model.envelope) != set(drivers):
             raise BaselineError(f"reference model {model.feature}: coefficient counts disagree")
         return model
+
+
+def envelope_positions(models, x: np.ndarray) -> np.ndarray:
+    """Envelope position (0 in, 1 near, 2 beyond) per row of ``x`` (rows) and model (columns).
+
+    ``models`` share one driver tuple, the column order of ``x``; the margin of a driver is the
+    larger of ``EXTRAPOLATION_MARGIN_SHARE`` of its training range and its absolute margin.
+    """
+    drivers = models[0].drivers
+    low = np.array([[m.envelope[d][0] for d in drivers] for m in models])
+    high = np.array([[m.envelope[d][1] for d in drivers] for m in models])
+    absolute = np.array([EXTRAPOLATION_MARGIN.get(d, 0.0) for d in drivers])
+    margin = np.maximum(EXTRAPOLATION_MARGIN_SHARE * (high - low), absolute)
+    values = x[:, None, :]  # rows x models x drivers
+    outside = (values < low) | (values > high)
+    beyond = (values < low - margin) | (values > high + margin) | ~np.isfinite(values)
+    return np.where(beyond, 2, outside.astype(int)).max(axis=2, initial=0)
 
 
 def _fit_one(feature: str, drivers: tuple[str, ...], x: np.ndarray, y: np.ndarray, hours):
@@ -258,27 +265,39 @@ class Baseline:
 
     def residuals(self, features: pd.DataFrame) -> tuple[pd.DataFrame, pd.Series]:
         """(measured - predicted per feature, envelope position per row: 0 in, 1 near, 2 out)."""
-        out = {}
-        position = np.zeros(len(features), dtype=int)
-        arrays: dict[tuple[str, ...], np.ndarray] = {}  # models mostly share one driver set
-        terms: dict[tuple, np.ndarray] = {}  # ... and often one scaler
-        for name, model in self.models.items():
-            if name not in features:
-                continue
-            x = arrays.get(model.drivers)
-            if x is None:
-                x = arrays[model.drivers] = features[list(model.drivers)].to_numpy(dtype=float)
-            where = model.envelope_position_array(x)
-            shared = terms.get(model.terms_key)
-            if shared is None:
-                shared = terms[model.terms_key] = model.terms(x)
-            predicted = shared @ np.asarray(model.coef) + model.intercept
-            out[name] = np.where(
-                where < 2, features[name].to_numpy(dtype=float) - predicted, np.nan
-            )
-            position = np.maximum(position, where)
+        names = {*self.models, *(d for m in self.models.values() for d in m.drivers)}
+        columns = {name: features[name].to_numpy(dtype=float) for name in names if name in features}
+        out, position = self.residual_arrays(columns, len(features))
         frame = pd.DataFrame(out, index=features.index)
         return frame, pd.Series(position, index=features.index, name="envelope")
+
+    def residual_arrays(
+        self, columns: dict[str, np.ndarray], n: int
+    ) -> tuple[dict[str, np.ndarray], np.ndarray]:
+        """:meth:`residuals` of ``n`` samples given as feature -> array (NaN beyond envelope)."""
+        groups: dict[tuple[str, ...], dict[str, ReferenceModel]] = {}  # models mostly share drivers
+        for name, model in self.models.items():
+            if name in columns:
+                groups.setdefault(model.drivers, {})[name] = model
+        inside, predicted = {}, {}
+        for drivers, models in groups.items():
+            x = np.array([columns[d] for d in drivers], dtype=float).T
+            positions = envelope_positions(tuple(models.values()), x)
+            terms: dict[tuple, np.ndarray] = {}  # ... and often one scaler
+            for j, (name, model) in enumerate(models.items()):
+                inside[name] = positions[:, j]
+                shared = terms.get(model.terms_key)
+                if shared is None:
+                    shared = terms[model.terms_key] = model.terms(x)
+                predicted[name] = shared @ np.asarray(model.coef) + model.intercept
+        out = {}
+        position = np.zeros(n, dtype=int)
+        for name in self.models:
+            if name in columns:
+                measured = np.asarray(columns[name], dtype=float)
+                out[name] = np.where(inside[name] < 2, measured - predicted[name], np.nan)
+                position = np.maximum(position, inside[name])
+        return out, position
 
 
 def choose_drivers(features: pd.DataFrame) -> tuple[str, ...]:
