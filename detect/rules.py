@@ -78,12 +78,21 @@ def expectations(features: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, 
         (a cool discharge says nothing on day one).
     bands : feature -> band [K] beyond which a deviation counts.
     """
-    out = pd.DataFrame(index=features.index)
+    columns = {name: features[name].to_numpy(dtype=float) for name in features}
+    deviations, bands = expectation_arrays(columns, unit)
+    return pd.DataFrame(deviations, index=features.index), bands
+
+
+def expectation_arrays(
+    features: dict[str, np.ndarray], unit: UnitInfo
+) -> tuple[dict[str, np.ndarray], dict]:
+    """:func:`expectations` of samples given as feature -> array (deviations as arrays)."""
+    out = {}
     bands = {}
     if unit.holds_superheat:
         target = unit.superheat_target_K or DEFAULT_VALVE_SUPERHEAT_K
         out["superheat"] = features["superheat"] - target
-    elif "return_air_humidity" in features and features["return_air_humidity"].notna().any():
+    elif "return_air_humidity" in features and not np.isnan(features["return_air_humidity"]).all():
         target = orifice_target_superheat(
             features["return_air_temp"],
             features["return_air_humidity"],
@@ -101,7 +110,7 @@ def expectations(features: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, 
     out["t_cond"] = features["condensing_approach"] - CONDENSING_APPROACH_K
     bands["t_cond"] = CONDENSING_APPROACH_BAND_K
     excess = features["discharge_temp"] - DISCHARGE_LIMIT_K
-    out["discharge_temp"] = excess.where(excess > 0)
+    out["discharge_temp"] = np.where(excess > 0, excess, np.nan)
     bands["discharge_temp"] = 0.0
     out["evaporator_air_drop"] = features["evaporator_air_drop"] - EVAPORATOR_AIR_DROP_K
     bands["evaporator_air_drop"] = EVAPORATOR_AIR_DROP_BAND_K
