@@ -81,6 +81,15 @@ class HourlyFindings:
                 self.found[(key, hour)] = finding
         self.columns[key] = column
 
+    def set_positions(self, key: str, checked: np.ndarray, found: dict[int, Finding]) -> None:
+        """:meth:`set` by position in ``hours``: a boolean mask of the hours checked, and
+        position -> Finding for the hours found."""
+        column = np.where(checked, 0.0, np.nan)
+        for k, finding in found.items():
+            column[k] = 1.0
+            self.found[(key, self.hours[k])] = finding
+        self.columns[key] = column
+
     def _positions(self, stamps) -> np.ndarray:
         """Positions in ``hours`` of those of ``stamps`` it holds (a sorted search, no pandas)."""
         if not isinstance(stamps, pd.DatetimeIndex):
