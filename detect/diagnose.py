@@ -47,6 +47,7 @@ References
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -54,7 +55,7 @@ import pandas as pd
 from scipy.special import ndtr
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
-from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS, hour_slots, hourly_medians
+from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS
 
 REFRIGERANT_FAULTS = (
     "low_charge",
@@ -193,65 +194,80 @@ def sign_probabilities(r, eps, sigma) -> dict[str, np.ndarray]:
 
 @dataclass(frozen=True)
 class HourlyResiduals:
-    """Hourly residuals of one unit: values, bands and uncertainties (hours x features)."""
+    """Hourly residuals of one unit: values, bands and uncertainties (hours x features arrays)."""
 
-    r: pd.DataFrame
-    eps: pd.DataFrame
-    sigma: pd.DataFrame
-    steady_samples: pd.Series
-    extrapolated: pd.Series  # share of the hour's samples judged outside the training envelope
+    hours: pd.DatetimeIndex
+    features: tuple[str, ...]  # the columns of r, eps and sigma
+    r: np.ndarray
+    eps: np.ndarray
+    sigma: np.ndarray
+    steady_samples: np.ndarray  # steady one-minute samples per hour
+    extrapolated: np.ndarray  # share of the hour's samples judged outside the training envelope
+
+
+def hourly_column_medians(values: np.ndarray, slot: np.ndarray, n_hours: int) -> np.ndarray:
+    """Median of the non-NaN values of each column per hour slot 0 .. n_hours - 1 (hours x
+    columns; slot -1 ignored; NaN where an hour has no value).
+
+    ``values`` holds one row per sample. The numbers of
+    :func:`rimewatch.detect.quality.hourly_medians` column by column (the mean of the two middle
+    values for an even count), from one sort of a columns x hours x samples block.
+    """
+    keep = slot >= 0
+    slot, values = slot[keep], values[keep]
+    if np.any(slot[1:] < slot[:-1]):
+        order = np.argsort(slot, kind="stable")
+        slot, values = slot[order], values[order]
+    medians = np.full((n_hours, values.shape[1]), np.nan)
+    if len(slot) == 0:
+        return medians
+    sizes = np.bincount(slot, minlength=n_hours)
+    within = np.arange(len(slot)) - (np.cumsum(sizes) - sizes)[slot]
+    block = np.full((values.shape[1], n_hours, sizes.max()), np.nan)
+    block[:, slot, within] = values.T
+    block.sort(axis=2)  # NaN last
+    count = np.count_nonzero(~np.isnan(block), axis=2)
+    low = np.take_along_axis(block, np.maximum(count - 1, 0)[..., None] // 2, axis=2)[..., 0]
+    high = np.take_along_axis(block, count[..., None] // 2, axis=2)[..., 0]
+    return np.where(count > 0, (low + high) / 2.0, np.nan).T
 
 
 def hourly_residuals(
-    residuals: pd.DataFrame,
+    residuals: dict[str, np.ndarray],
+    slot: np.ndarray,
     bands: dict[str, float],
     sigmas: dict[str, float],
     hours: pd.DatetimeIndex,
-    extrapolated: pd.Series | None = None,
+    extrapolated: np.ndarray | None = None,
     widening: float = 1.0,
 ) -> HourlyResiduals:
     """Medians of per-minute residuals per hour, with bands and uncertainties.
 
     Parameters
     ----------
-    residuals : per-minute residuals of steady samples.
+    residuals : feature -> per-minute residuals of the steady samples.
+    slot : position in ``hours`` of each sample's hour (-1 outside,
+        :func:`rimewatch.detect.quality.hour_slots`).
     bands, sigmas : per feature: the band eps and the uncertainty of an hourly median.
     hours : the hours to report on.
     extrapolated : per-minute flag, sample judged within the extrapolation margin.
     widening : factor on eps and sigma for hours mostly extrapolated.
     """
-    slot = hour_slots(residuals.index, hours)  # -1: outside the reported hours
-    rows = np.bincount(slot[slot >= 0], minlength=len(hours))
-    counts = pd.Series(rows, index=hours)
-    few = rows < MIN_STEADY_PER_HOUR
-    medians = pd.DataFrame(
-        {
-            name: np.where(few, np.nan, hourly_medians(values.to_numpy(float), slot, len(hours))[0])
-            for name, values in residuals.items()
-        },
-        index=hours,
-        columns=residuals.columns,
-    )
-    if extrapolated is None:
-        share = pd.Series(0.0, index=hours)
-    else:
-        flags = extrapolated.to_numpy(dtype=float)[slot >= 0]
-        total = np.bincount(slot[slot >= 0], weights=flags, minlength=len(hours))
-        shares = np.divide(total, rows, out=np.zeros(len(hours)), where=rows > 0)
-        share = pd.Series(shares, index=hours, name=extrapolated.name)
-    factor = np.where(share.to_numpy() > 0.5, widening, 1.0)[:, None]
-    columns = list(medians.columns)
-    eps = pd.DataFrame(
-        np.array([bands.get(c, np.nan) for c in columns])[None, :] * factor,
-        index=hours,
-        columns=columns,
-    )
-    sigma = pd.DataFrame(
-        np.array([sigmas.get(c, np.nan) for c in columns])[None, :] * factor,
-        index=hours,
-        columns=columns,
-    )
-    return HourlyResiduals(medians, eps, sigma, counts, share)
+    names = tuple(residuals)
+    inside = slot >= 0
+    rows = np.bincount(slot[inside], minlength=len(hours))
+    columns = np.array([residuals[name] for name in names], dtype=float).reshape(len(names), -1)
+    medians = hourly_column_medians(columns.T, slot, len(hours))
+    medians[rows < MIN_STEADY_PER_HOUR] = np.nan
+    share = np.zeros(len(hours))
+    if extrapolated is not None:
+        flags = np.asarray(extrapolated, dtype=float)[inside]
+        total = np.bincount(slot[inside], weights=flags, minlength=len(hours))
+        np.divide(total, rows, out=share, where=rows > 0)
+    factor = np.where(share > 0.5, widening, 1.0)[:, None]
+    eps = np.array([bands.get(c, np.nan) for c in names], dtype=float)[None, :] * factor
+    sigma = np.array([sigmas.get(c, np.nan) for c in names], dtype=float)[None, :] * factor
+    return HourlyResiduals(hours, names, medians, eps, sigma, rows, share)
 
 
 def band_and_sigma(feature: str, sigma_hourly: float) -> tuple[float, float]:
@@ -270,25 +286,39 @@ def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) 
     dict with ``normal`` (probability every feature is inside its band), ``ranking`` [(code,
     share)] best first (empty when no class fits at all), ``deviating`` (features with P0 < 0.05).
     """
-    residual = r.to_numpy(dtype=float)
-    bands = (eps if eps.index.equals(r.index) else eps.reindex(r.index)).to_numpy(dtype=float)
-    spreads = (sigma if sigma.index.equals(r.index) else sigma.reindex(r.index)).to_numpy(
-        dtype=float
+    bands = eps if eps.index.equals(r.index) else eps.reindex(r.index)
+    spreads = sigma if sigma.index.equals(r.index) else sigma.reindex(r.index)
+    return classify_values(
+        list(r.index),
+        r.to_numpy(dtype=float),
+        bands.to_numpy(dtype=float),
+        spreads.to_numpy(dtype=float),
+        device_class,
     )
+
+
+def classify_values(
+    names: list[str],
+    residual: np.ndarray,
+    bands: np.ndarray,
+    spreads: np.ndarray,
+    device_class: str,
+) -> dict:
+    """:func:`classify` of one hour given as feature names and their r, eps and sigma arrays."""
     available = ~(np.isnan(residual) | np.isnan(bands) | np.isnan(spreads))
     probabilities = sign_probabilities(residual[available], bands[available], spreads[available])
-    names = list(r.index[available])
-    p = {sign: dict(zip(names, values, strict=True)) for sign, values in probabilities.items()}
+    names = [n for n, ok in zip(names, available.tolist(), strict=True) if ok]
+    p = {sign: dict(zip(names, v.tolist(), strict=True)) for sign, v in probabilities.items()}
     normal = float(np.prod(probabilities["0"])) if names else 1.0
     deviating = [n for n in names if p["0"][n] < 0.05]
-    inside = {n: float(p["0"][n]) for n in names}
+    inside = dict(p["0"])
     scores = {}
     for code, pattern in PATTERNS[device_class].items():
-        used = [f for f in pattern if f in p["0"]]
+        used = [f for f in pattern if f in inside]
         signed = [f for f in used if pattern[f] in ("+", "-")]
         if len(signed) < 2:
             continue  # not enough of this fault's evidence is measured
-        scores[code] = float(np.prod([p[pattern[f]][f] for f in used]))
+        scores[code] = math.prod(p[pattern[f]][f] for f in used)
     total = sum(scores.values())
     ranking = []
     if total > 1e-12:
@@ -327,25 +357,27 @@ def suspect_sensor(deviating: list[str], inside: dict[str, float]) -> str | None
 
 @dataclass(frozen=True)
 class ImpactInputs:
-    """Per-hour measured and expected capacity and power for the impact estimate (W)."""
+    """Per-hour measured and expected capacity and power for the impact estimate (W), one value
+    per hour of the analysis."""
 
-    capacity: pd.Series
-    capacity_expected: pd.Series
-    power: pd.Series
-    power_expected: pd.Series
+    capacity: np.ndarray
+    capacity_expected: np.ndarray
+    power: np.ndarray
+    power_expected: np.ndarray
     running_hours_per_day: float
 
 
-def impact(inputs: ImpactInputs | None, hour, tariff_per_kWh: float) -> dict:
-    """Capacity lost %, extra power %, extra kWh and cost per day for one hour's evidence.
+def impact(inputs: ImpactInputs | None, hour: int, tariff_per_kWh: float) -> dict:
+    """Capacity lost %, extra power %, extra kWh and cost per day for one hour's evidence
+    (``hour``: its position in the analysed hours).
 
     Extra energy: the same cooling at the reduced COP needs E (COP_ref / COP - 1) more energy,
     with E the energy the unit uses per day at this hour's power and its running hours per day.
     """
     if inputs is None:
         return {}
-    q, q0 = inputs.capacity.get(hour, np.nan), inputs.capacity_expected.get(hour, np.nan)
-    w, w0 = inputs.power.get(hour, np.nan), inputs.power_expected.get(hour, np.nan)
+    q, q0 = inputs.capacity[hour], inputs.capacity_expected[hour]
+    w, w0 = inputs.power[hour], inputs.power_expected[hour]
     if not all(np.isfinite(v) and v > 0 for v in (q, q0, w, w0)):
         return {}
     cop, cop0 = q / w, q0 / w0
@@ -360,7 +392,7 @@ def impact(inputs: ImpactInputs | None, hour, tariff_per_kWh: float) -> dict:
     }
 
 
-def severity_score(code: str, r: pd.Series, eps: pd.Series, hour_impact: dict) -> float:
+def severity_score(code: str, r: dict, eps: dict, hour_impact: dict) -> float:
     """0..1: from the lost share of capacity or COP when known, else from the main residual."""
     losses = [hour_impact.get("capacity_loss_pct"), hour_impact.get("cop_loss_pct")]
     losses = [v / 100.0 for v in losses if v is not None and np.isfinite(v)]
@@ -380,6 +412,19 @@ def severity_label(score: float) -> str:
         if loss < limit:
             return label
     return "severe"
+
+
+def _faulty_positions(faulty: dict, hours: pd.DatetimeIndex) -> dict[int, set[str]]:
+    """``faulty`` (hour -> points) keyed by position in ``hours`` instead (other hours dropped)."""
+    if not faulty:
+        return {}
+    position = {ns: k for k, ns in enumerate(hours.as_unit("ns").asi8.tolist())}
+    out = {}
+    for hour, points in faulty.items():
+        k = position.get(pd.Timestamp(hour).value)
+        if k is not None:
+            out[k] = points
+    return out
 
 
 def diagnose(
@@ -403,54 +448,48 @@ def diagnose(
     residual_drift : report deviations that one sensor explains as that sensor's drift
         (:func:`suspect_sensor`; baseline mode, the day-one rules judge too few features).
     """
-    hours = residuals.r.index
-    out = HourlyFindings.empty(hours)
-    out.steady_samples = residuals.steady_samples
-    checked: list = []
-    found: dict = {code: {} for code in REFRIGERANT_FAULTS}
-    drift_checked: dict = {p: [] for p in SINGLE_SENSOR_FEATURES.values()}
-    drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
-    values, columns = residuals.r.to_numpy(dtype=float), residuals.r.columns
-    bands, spreads = residuals.eps.to_numpy(dtype=float), residuals.sigma.to_numpy(dtype=float)
+    hours, names = residuals.hours, residuals.features
+    out = HourlyFindings(hours, {}, {}, pd.Series(residuals.steady_samples, index=hours))
+    values, bands, spreads = residuals.r, residuals.eps, residuals.sigma
     known = np.isfinite(values) & np.isfinite(bands) & np.isfinite(spreads)
     inside = np.where(known, sign_probabilities(values, bands, spreads)["0"], 1.0)
     normal_all = np.prod(inside, axis=1)  # every feature judged: the quick test of a sound hour
-    drift_columns = {
-        point: residuals.r.columns.get_loc(feature)
-        for feature, point in SINGLE_SENSOR_FEATURES.items()
-        if feature in residuals.r.columns
-    }
-    for i, hour in enumerate(hours):
-        if np.isfinite(values[i]).sum() < 3:
-            continue
-        bad = faulty.get(hour, set())
+    bad_at = _faulty_positions(faulty, hours)
+    checked = np.isfinite(values).sum(axis=1) >= 3
+    for k, bad in bad_at.items():
         if "all" in bad or bad & set(DRIVER_POINTS):
-            continue
-        if not bad and normal_all[i] >= ABNORMAL_BELOW:
-            checked.append(hour)
-            for point, column in drift_columns.items():
-                if np.isfinite(values[i, column]):
-                    drift_checked[point].append(hour)
-            continue
-        keep = [j for j, f in enumerate(columns) if not set(FEATURE_POINTS.get(f, ())) & bad]
-        names = columns[keep]
-        r = pd.Series(values[i, keep], index=names, name=hour)
-        eps = pd.Series(bands[i, keep], index=names, name=hour)
-        sigma = pd.Series(spreads[i, keep], index=names, name=hour)
-        result = classify(r, eps, sigma, device_class)
-        checked.append(hour)
+            checked[k] = False
+    sound = checked & (normal_all >= ABNORMAL_BELOW)
+    sound[[k for k, bad in bad_at.items() if bad]] = False
+    drift_checked = {}
+    for feature, point in SINGLE_SENSOR_FEATURES.items():
+        drift_checked[point] = np.zeros(len(hours), dtype=bool)
+        if feature in names:
+            drift_checked[point] = sound & np.isfinite(values[:, names.index(feature)])
+    found: dict = {code: {} for code in REFRIGERANT_FAULTS}
+    drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
+    points_of = [set(FEATURE_POINTS.get(f, ())) for f in names]
+    for i in np.flatnonzero(checked & ~sound).tolist():
+        bad = bad_at.get(i, set())
+        keep = [j for j, points in enumerate(points_of) if not points & bad]
+        kept = [names[j] for j in keep]
+        r = dict(zip(kept, values[i, keep], strict=True))
+        eps = dict(zip(kept, bands[i, keep], strict=True))
+        result = classify_values(
+            kept, values[i, keep], bands[i, keep], spreads[i, keep], device_class
+        )
         for feature, point in SINGLE_SENSOR_FEATURES.items():
-            if feature in r.index and np.isfinite(r[feature]):
-                drift_checked[point].append(hour)
+            if feature in r and np.isfinite(r[feature]):
+                drift_checked[point][i] = True
         if result["normal"] >= ABNORMAL_BELOW:
             continue
-        samples = int(residuals.steady_samples.get(hour, 0))
+        samples = int(residuals.steady_samples[i])
         point = suspect_sensor(result["deviating"], result["inside"]) if residual_drift else None
         unexplained = not result["ranking"] or result["ranking"][0][1] < 0.5
         if point is not None and (unexplained or result["fit"] < 1e-3):
             feature = {v: k for k, v in SINGLE_SENSOR_FEATURES.items()}[point]
             shown = ", ".join(f"{f} {r[f]:+.2f}" for f in result["deviating"])
-            drift_found[point][hour] = Finding(
+            drift_found[point][i] = Finding(
                 float(min(1.0, abs(r[feature]) / (6 * eps[feature]))),
                 0.6,
                 f"residuals {shown} all depend on {point} and everything else is as "
@@ -461,12 +500,12 @@ def diagnose(
         if not result["ranking"] or result["fit"] < 1e-3:
             continue  # abnormal but no fault pattern fits: not raised as a refrigerant fault
         code, confidence = result["ranking"][0]
-        hour_impact = impact(impacts, hour, tariff_per_kWh)
+        hour_impact = impact(impacts, i, tariff_per_kWh)
         score = severity_score(code, r, eps, hour_impact)
         evidence = ", ".join(
             f"{f} {r[f]:+.2f}" for f in result["deviating"] if f in PATTERNS[device_class][code]
         )
-        found[code][hour] = Finding(
+        found[code][i] = Finding(
             score,
             float(confidence),
             f"residuals {evidence}" if evidence else "residual pattern",
@@ -475,9 +514,9 @@ def diagnose(
             hour_impact,
         )
     for code in REFRIGERANT_FAULTS:
-        out.set(code, checked, found[code])
+        out.set_positions(code, checked, found[code])
     for point in drift_found:
-        out.set(
+        out.set_positions(
             finding_key("sensor_fault", f"{point}:drift"),
             drift_checked[point],
             drift_found[point],

@@ -77,36 +77,36 @@ def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prep
     """
     if since is not None:
         frame = frame.loc[pd.Timestamp(since) - WARM_UP :]
-    grid = steady.align(frame)
+    grid = steady.align(frame)  # a sorted index: the periods below are slices
     if until is not None:
-        grid = grid[grid.index < pd.Timestamp(until)]
-    judged = np.ones(len(grid), dtype=bool)
-    if since is not None:
-        judged = np.asarray(grid.index >= pd.Timestamp(since))
-    if not judged.any():
+        grid = grid.iloc[: grid.index.searchsorted(pd.Timestamp(until))]
+    first = 0 if since is None else grid.index.searchsorted(pd.Timestamp(since))
+    if first == len(grid):
         raise ValueError(f"unit {unit.key}: no readings in the period")
-    hours = _hour_range(grid.index[judged], since, until)
+    hours = _hour_range(grid.index[first:], since, until)
     grid, blanked = quality.blank_out_of_range(grid, unit)
     running, still = steady.running_and_standstill(grid)
     features = unit_features(grid, unit, running)
-    # features hold the running samples: the steady test's signals and mask on those rows
-    run = running.to_numpy(dtype=bool)
-    signals = pd.DataFrame(
-        {
-            name: features[name].to_numpy() if name in features else grid[name].to_numpy()[run]
-            for name in steady.STEADY_LIMITS_K
-            if name in features or name in grid
-        },
-        index=features.index,
+    steady_mask = steady.steady(
+        _steady_signals(grid, running, features), pd.Series(True, index=features.index)
     )
-    steady_mask = steady.steady(signals, pd.Series(True, index=features.index))
     if since is not None:
-        keep = np.asarray(features.index >= pd.Timestamp(since))
-        features, steady_mask = features[keep], steady_mask[keep]
+        keep = features.index.searchsorted(pd.Timestamp(since))
+        features, steady_mask = features.iloc[keep:], steady_mask.iloc[keep:]
     checks = quality.check_quality(
         grid, blanked, running, still, unit, hours, features, steady_mask
     )
-    return Prepared(grid[judged], hours, running[judged], features, steady_mask, checks)
+    return Prepared(grid.iloc[first:], hours, running.iloc[first:], features, steady_mask, checks)
+
+
+def _steady_signals(grid: pd.DataFrame, running: pd.Series, features: pd.DataFrame) -> pd.DataFrame:
+    """The steady test's signals on the running samples (the rows of ``features``)."""
+    run = running.to_numpy(dtype=bool)
+    names = [name for name in steady.STEADY_LIMITS_K if name in features or name in grid]
+    values = np.empty((len(features), len(names)))
+    for j, name in enumerate(names):
+        values[:, j] = features[name].to_numpy() if name in features else grid[name].to_numpy()[run]
+    return pd.DataFrame(values, index=features.index, columns=names)
 
 
 def _clean_steady_rows(prepared: Prepared) -> pd.Series:
@@ -126,45 +126,50 @@ def fit_unit_baseline(frame: pd.DataFrame, unit: UnitInfo, start, end) -> Baseli
     return fit_baseline(unit.key, training, start, end, (*RESIDUAL_FEATURES, *IMPACT_FEATURES))
 
 
+def _steady_columns(prepared: Prepared) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """(feature -> values of the steady samples, their hour slots in ``prepared.hours``)."""
+    features = prepared.features
+    steady = prepared.steady.to_numpy(dtype=bool)
+    rows = features.to_numpy(dtype=float).T[:, steady]  # one row per feature
+    slot = quality.hour_slots(features.index, prepared.hours)[steady]
+    return dict(zip(features.columns, rows, strict=True)), slot
+
+
 def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):
-    steady_rows = prepared.features.loc[prepared.steady.to_numpy()]
+    columns, slot = _steady_columns(prepared)
     if baseline is None:
-        deviations, bands = rules.expectations(steady_rows, unit)
+        deviations, bands = rules.expectation_arrays(columns, unit)
         sigmas = dict.fromkeys(deviations, rules.RULE_UNCERTAINTY_K)
-        return diagnose.hourly_residuals(deviations, bands, sigmas, prepared.hours), None
-    residuals, position = baseline.residuals(steady_rows)
+        return diagnose.hourly_residuals(deviations, slot, bands, sigmas, prepared.hours), None
+    residuals, position = baseline.residual_arrays(columns, len(slot))
     bands, sigmas = {}, {}
     for name in RESIDUAL_FEATURES:
         model = baseline.models.get(name)
         if model is not None:
             bands[name], sigmas[name] = diagnose.band_and_sigma(name, model.sigma_hourly)
-    judged = residuals[[c for c in RESIDUAL_FEATURES if c in residuals]]
+    judged = {name: residuals[name] for name in RESIDUAL_FEATURES if name in residuals}
     hourly = diagnose.hourly_residuals(
-        judged, bands, sigmas, prepared.hours, position == 1, EXTRAPOLATION_WIDENING
+        judged, slot, bands, sigmas, prepared.hours, position == 1, EXTRAPOLATION_WIDENING
     )
-    return hourly, _impact_inputs(prepared, steady_rows, residuals, baseline)
+    return hourly, _impact_inputs(prepared, columns, slot, residuals, baseline)
 
 
-def _impact_inputs(prepared, steady_rows, residuals, baseline) -> diagnose.ImpactInputs | None:
+def _impact_inputs(prepared, columns, slot, residuals, baseline) -> diagnose.ImpactInputs | None:
     if not all(name in baseline.models and name in residuals for name in IMPACT_FEATURES):
         return None
-    slot = quality.hour_slots(steady_rows.index, prepared.hours)
-
-    def hourly_median(values: np.ndarray) -> pd.Series:
-        medians, _ = quality.hourly_medians(values, slot, len(prepared.hours))
-        return pd.Series(medians, index=prepared.hours)
-
-    measured = {name: steady_rows[name].to_numpy(dtype=float) for name in IMPACT_FEATURES}
-    expected = {name: measured[name] - residuals[name].to_numpy(dtype=float) for name in measured}
+    capacity, power = (columns[name] for name in IMPACT_FEATURES)
+    per_sample = np.array(
+        [
+            capacity,
+            capacity - residuals["cooling_capacity"],
+            power,
+            power - residuals["compressor_power"],
+        ]
+    )
+    medians = diagnose.hourly_column_medians(per_sample.T, slot, len(prepared.hours)).T
     days = max(len(prepared.hours) / 24.0, 1.0 / 24.0)
     running_hours = float(prepared.running.sum()) / 60.0 / days
-    return diagnose.ImpactInputs(
-        hourly_median(measured["cooling_capacity"]),
-        hourly_median(expected["cooling_capacity"]),
-        hourly_median(measured["compressor_power"]),
-        hourly_median(expected["compressor_power"]),
-        running_hours,
-    )
+    return diagnose.ImpactInputs(*medians, running_hours)
 
 
 def _judged_hours(findings: HourlyFindings) -> np.ndarray:
@@ -202,14 +207,14 @@ def analyze_unit(
     )
     findings = prepared.quality
     findings.merge(diagnosis)
-    findings.steady_samples = hourly.steady_samples
+    findings.steady_samples = diagnosis.steady_samples
     found_events = events.derive_events(unit.key, findings)
     stats = {
         "minutes": len(prepared.grid),
-        "running_minutes": int(prepared.running.sum()),
-        "steady_minutes": int(prepared.steady.sum()),
+        "running_minutes": int(np.count_nonzero(prepared.running.to_numpy())),
+        "steady_minutes": int(np.count_nonzero(prepared.steady.to_numpy())),
         "hours_judged": int(_judged_hours(diagnosis).sum()),
-        "hours_extrapolated": int((hourly.extrapolated > 0.5).sum()),
+        "hours_extrapolated": int(np.count_nonzero(hourly.extrapolated > 0.5)),
         "mode": "baseline" if baseline is not None else "day-one rules",
     }
     return UnitAnalysis(unit.key, findings, found_events, stats)
