@@ -28,6 +28,7 @@ logger outage of a few hours is a gap, not a fault.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -91,23 +92,21 @@ def _policy_for(key: str) -> EventPolicy:
     return OFFLINE_POLICY if key.endswith(":offline") else SENSOR_POLICY
 
 
-def _family_status(findings: HourlyFindings, found_only: bool = False) -> dict[str, pd.Series]:
-    """Series to follow: the refrigerant family combined, every sensor key on its own
+def _family_columns(findings: HourlyFindings, found_only: bool = False) -> dict[str, np.ndarray]:
+    """Status per hour to follow: the refrigerant family combined, every sensor key on its own
     (``found_only``: only those found in some hour)."""
     columns = findings.columns
-    arrays, names = {}, {}
+    arrays = {}
     codes = [c for c in REFRIGERANT_FAULTS if c in columns]
     if codes:  # the largest status of the family's codes; NaN only where none was checked
         arrays[REFRIGERANT_FAMILY] = np.fmax.reduce([columns[c] for c in codes])
-        names[REFRIGERANT_FAMILY] = None
     for key, column in columns.items():
         if key not in REFRIGERANT_FAULTS:
-            arrays[key], names[key] = column, key
-    return {
-        key: pd.Series(values, index=findings.hours, name=names[key])
-        for key, values in arrays.items()
-        if not found_only or (values == 1.0).any()
-    }
+            arrays[key] = column
+    if found_only and arrays:
+        found = (np.array(list(arrays.values())) == 1.0).any(axis=1).tolist()
+        return {k: v for (k, v), hit in zip(arrays.items(), found, strict=True) if hit}
+    return arrays
 
 
 def _found_at(findings: HourlyFindings, key: str, hour):
@@ -123,31 +122,38 @@ def _found_at(findings: HourlyFindings, key: str, hour):
 def derive_events(unit: str, findings: HourlyFindings) -> list[Event]:
     """Every event the hourly findings of one unit support, in order of start."""
     events = []
-    for key, status in _family_status(findings, found_only=True).items():
-        events.extend(_episodes(unit, key, status.sort_index(), findings, _policy_for(key)))
+    columns = _family_columns(findings, found_only=True)
+    if not columns:
+        return events
+    order = np.argsort(findings.hours.asi8, kind="stable")  # hour order
+    hours = (findings.hours.as_unit("ns").asi8[order], findings.hours[order])
+    for key, status in columns.items():
+        events.extend(_episodes(unit, key, status[order], hours, findings, _policy_for(key)))
     return sorted(events, key=lambda e: (e.start, e.code, e.detail))
 
 
-def _episodes(unit, key, status: pd.Series, findings, policy: EventPolicy) -> list[Event]:
+def _episodes(unit, key, status: np.ndarray, hours, findings, policy: EventPolicy) -> list[Event]:
+    """Events of one key; ``status`` per hour of ``hours`` (UTC nanoseconds, DatetimeIndex)."""
+    nanoseconds, stamps = hours
+    forget_ns = policy.forget_after_hours * HOUR.value
     events: list[Event] = []
     found: list = []  # [(hour, code, finding)]
+    last_found_ns = 0
     opened_code = None
     detected = None
     negatives = 0
-    for hour, value in status.items():
-        if np.isnan(value):
-            if (
-                found
-                and opened_code is None
-                and hour - found[-1][0] > policy.forget_after_hours * HOUR
-            ):
+    for k, value in enumerate(status.tolist()):
+        if math.isnan(value):
+            if found and opened_code is None and nanoseconds[k] - last_found_ns > forget_ns:
                 found = []
             continue
         if value == 1.0:
+            hour = stamps[k]
             code, finding = _found_at(findings, key, hour)
             if finding is None:
                 continue
             found.append((hour, code, finding))
+            last_found_ns = nanoseconds[k]
             negatives = 0
             if opened_code is None and _qualifies(found, policy):
                 opened_code = _leading_code(found) if key == REFRIGERANT_FAMILY else code
@@ -223,9 +229,10 @@ def cleared_after(findings: HourlyFindings, code: str, detail: str, last_seen) -
     """Whether a stored open event (code, detail, last found hour ending at ``last_seen``) has
     cleared in these findings: enough checked hours after it without the finding."""
     key = REFRIGERANT_FAMILY if code in REFRIGERANT_FAULTS else f"{code}:{detail}"
-    status = _family_status(findings).get(key)
-    if status is None:
+    column = _family_columns(findings).get(key)
+    if column is None:
         return False
+    status = pd.Series(column, index=findings.hours)
     after = status[status.index >= pd.Timestamp(last_seen)].dropna()
     if (after == 1.0).any():
         return False
