@@ -99,13 +99,18 @@ def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prep
     return Prepared(grid.iloc[first:], hours, running.iloc[first:], features, steady_mask, checks)
 
 
+def _columns(frame: pd.DataFrame, rows=slice(None)) -> dict[str, np.ndarray]:
+    """Name -> values of ``rows`` of a float frame (no Series per column)."""
+    return dict(zip(frame.columns.tolist(), frame.to_numpy(dtype=float).T[:, rows], strict=True))
+
+
 def _steady_signals(grid: pd.DataFrame, running: pd.Series, features: pd.DataFrame) -> pd.DataFrame:
-    """The steady test's signals on the running samples (the rows of ``features``)."""
-    run = running.to_numpy(dtype=bool)
-    names = [name for name in steady.STEADY_LIMITS_K if name in features or name in grid]
-    values = np.empty((len(features), len(names)))
-    for j, name in enumerate(names):
-        values[:, j] = features[name].to_numpy() if name in features else grid[name].to_numpy()[run]
+    """The steady test's signals on the running samples (the rows of ``features``): the
+    feature where there is one, else the reading."""
+    own, read = _columns(features), _columns(grid, running.to_numpy(dtype=bool))
+    names = [name for name in steady.STEADY_LIMITS_K if name in own or name in read]
+    columns = [own[name] if name in own else read[name] for name in names]
+    values = np.column_stack(columns) if columns else np.empty((len(features), 0))
     return pd.DataFrame(values, index=features.index, columns=names)
 
 
@@ -128,11 +133,9 @@ def fit_unit_baseline(frame: pd.DataFrame, unit: UnitInfo, start, end) -> Baseli
 
 def _steady_columns(prepared: Prepared) -> tuple[dict[str, np.ndarray], np.ndarray]:
     """(feature -> values of the steady samples, their hour slots in ``prepared.hours``)."""
-    features = prepared.features
     steady = prepared.steady.to_numpy(dtype=bool)
-    rows = features.to_numpy(dtype=float).T[:, steady]  # one row per feature
-    slot = quality.hour_slots(features.index, prepared.hours)[steady]
-    return dict(zip(features.columns, rows, strict=True)), slot
+    slot = quality.hour_slots(prepared.features.index, prepared.hours)[steady]
+    return _columns(prepared.features, steady), slot
 
 
 def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):
