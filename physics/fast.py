@@ -37,6 +37,7 @@ import os
 import tempfile
 import threading
 from dataclasses import dataclass
+from functools import lru_cache
 from pathlib import Path
 
 import CoolProp.CoolProp as CP
@@ -86,8 +87,9 @@ class _Axis:
     def contains(self, x: np.ndarray) -> np.ndarray:
         return (x >= self.start) & (x <= self.stop)
 
-    def locate(self, x: np.ndarray) -> tuple[np.ndarray, tuple[np.ndarray, ...]]:
-        """Index of the stencil's second node and the four cubic Lagrange weights for ``x``.
+    def locate(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Index of the stencil's second node and the four cubic Lagrange weights for ``x``,
+        shape (4, n).
 
         Samples outside the axis (and NaN) get an edge stencil; callers mask them.
         """
@@ -100,17 +102,24 @@ class _Axis:
         t -= i
         t_t1 = t * (t - 1.0)
         t1_t2 = (t + 1.0) * (t - 2.0)
-        weights = (
-            t_t1 * (t - 2.0) * (-1.0 / 6.0),
-            t1_t2 * (t - 1.0) * 0.5,
-            t1_t2 * t * -0.5,
-            t_t1 * (t + 1.0) * (1.0 / 6.0),
-        )
+        weights = np.empty((4, t.size))
+        np.multiply(t_t1, t - 2.0, out=weights[0])
+        weights[0] *= -1.0 / 6.0
+        np.multiply(t1_t2, t - 1.0, out=weights[1])
+        weights[1] *= 0.5
+        np.multiply(t1_t2, t, out=weights[2])
+        weights[2] *= -0.5
+        np.multiply(t_t1, t + 1.0, out=weights[3])
+        weights[3] *= 1.0 / 6.0
         return i.astype(np.intp), weights
 
 
+_NODES_1D = np.arange(4)[:, None]
+
+
 class _Stencil:
-    """Where samples fall on a 1-D or 2-D grid: flat indices of the first node and the weights.
+    """Where samples fall on a 1-D or 2-D grid: flat indices of the 4 (or 4 x 4) nodes around
+    each sample and their weights.
 
     Computed once and applied to every property tabulated on the same grid.
     """
@@ -119,39 +128,46 @@ class _Stencil:
         """``rows`` is an axis located at ``x``, or a ``(index, weights)`` pair already located."""
         i, self.wx = rows.locate(x) if isinstance(rows, _Axis) else rows
         if col_axis is None:
-            self.base, self.wy, self.stride = i - 1, None, 0
+            self.wy = None
+            self.index = (i - 1) + _NODES_1D  # (4, n)
         else:
             j, self.wy = col_axis.locate(y)
-            self.stride = col_axis.nodes
-            self.base = (i - 1) * self.stride + (j - 1)
+            base = (i - 1) * col_axis.nodes + (j - 1)
+            self.index = base + _nodes_2d(col_axis.nodes)  # (16, n): node (a, b) at 4 a + b
 
     def apply(self, flat_table: np.ndarray) -> np.ndarray:
-        """Interpolate a C-contiguous table, flattened, at the stencil's samples."""
-        index = self.base.copy()
-        node = np.empty(index.shape)
+        """Interpolate a C-contiguous table, flattened, at the stencil's samples.
+
+        Sums in the order sum_a wx_a (sum_b wy_b f_ab), each sum from its first term.
+        """
+        nodes = flat_table.take(self.index)
         if self.wy is None:
-            out = flat_table.take(index) * self.wx[0]
-            for a in (1, 2, 3):
-                index += 1
-                flat_table.take(index, out=node)
-                node *= self.wx[a]
-                out += node
-            return out
-        out = np.zeros(index.shape)
-        row = np.empty(index.shape)
-        for a in range(4):
-            if a:
-                index += self.stride - 3
-            flat_table.take(index, out=row)
-            row *= self.wy[0]
-            for b in (1, 2, 3):
-                index += 1
-                flat_table.take(index, out=node)
-                node *= self.wy[b]
-                row += node
-            row *= self.wx[a]
+            nodes *= self.wx
+            return _sum_rows(nodes)
+        nodes = nodes.reshape(4, 4, -1)
+        nodes *= self.wy
+        rows = nodes[:, 0] + nodes[:, 1]
+        rows += nodes[:, 2]
+        rows += nodes[:, 3]
+        rows *= self.wx
+        out = np.zeros(rows.shape[1])
+        for row in rows:
             out += row
         return out
+
+
+def _sum_rows(values: np.ndarray) -> np.ndarray:
+    """``((values[0] + values[1]) + values[2]) + values[3]`` for an array of 4 rows."""
+    out = values[0] + values[1]
+    out += values[2]
+    out += values[3]
+    return out
+
+
+@lru_cache(maxsize=8)
+def _nodes_2d(stride: int) -> np.ndarray:
+    """Flat offsets (16, 1) of the 4 x 4 nodes of a stencil on a grid of ``stride`` columns."""
+    return (np.arange(4)[:, None] * stride + np.arange(4)).reshape(16, 1)
 
 
 @dataclass
@@ -385,7 +401,7 @@ class PressureLookup:
         if mask.all():
             return self._rows
         index, weights = self._rows
-        return index[mask], tuple(w[mask] for w in weights)
+        return index[mask], weights[:, mask]
 
     def saturation(self, name: str) -> np.ndarray:
         """A saturation property by name: ``T_dew``, ``T_bubble``, ``h_dew``, ``h_bubble``,
