@@ -34,8 +34,8 @@ import numpy as np
 import pandas as pd
 
 from rimewatch.detect.unit import UnitInfo
-from rimewatch.physics import cycle_states
 from rimewatch.physics import virtual_sensors as vs
+from rimewatch.physics.cycle import cycle_arrays
 
 MIN_SUPERHEAT_FOR_ENTHALPY_K = 1.0
 ENTHALPY_FEATURES = (
@@ -67,10 +67,6 @@ FEATURES = (
 )
 
 
-def _column(grid: pd.DataFrame, name: str):
-    return grid[name] if name in grid and grid[name].notna().any() else None
-
-
 def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.DataFrame:
     """Features and driving conditions for the samples selected by ``rows`` (boolean Series).
 
@@ -80,32 +76,32 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     unit : the unit's description.
     rows : which samples to compute (usually the running ones).
     """
-    sub = grid.loc[rows.to_numpy(dtype=bool)]
-    out = pd.DataFrame(index=sub.index)
-    if sub.empty or _column(sub, "suction_pressure") is None:
-        return out.assign(**dict.fromkeys((*FEATURES, *DRIVERS), np.nan))
-    states = cycle_states(
+    selected = rows.to_numpy(dtype=bool)
+    index = grid.index[selected]
+    sub = _selected_columns(grid, selected)
+    if not len(index) or not sub or _present(sub, "suction_pressure") is None:
+        nan = np.full(len(index), np.nan)
+        return _frame(dict.fromkeys((*FEATURES, *DRIVERS), nan), index)
+    states, _ = cycle_arrays(
         unit.refrigerant,
         sub["suction_pressure"],
         sub.get("discharge_pressure", np.nan),
-        suction_temp=_column(sub, "suction_temp"),
-        liquid_temp=_column(sub, "liquid_temp"),
-        discharge_temp=_column(sub, "discharge_temp"),
+        suction_temp=_present(sub, "suction_temp"),
+        liquid_temp=_present(sub, "liquid_temp"),
+        discharge_temp=_present(sub, "discharge_temp"),
     )  # subcooling at the condenser outlet, where the liquid temperature is read; the liquid
     # pressure (at the expansion device, after any restriction) feeds liquid_line_drop only
-    # columns gathered as arrays, the frame built once at the end
-    out = {name: states[name].to_numpy() for name in ("t_evap", "t_cond", "superheat")}
-    out["subcooling"] = states["subcooling"].to_numpy()
-    nan = np.full(len(sub), np.nan)
+    out = {name: states[name] for name in ("t_evap", "t_cond", "superheat", "subcooling")}
+    nan = np.full(len(index), np.nan)
 
     def reading(name: str) -> np.ndarray:
-        return sub[name].to_numpy() if name in sub else nan
+        return sub.get(name, nan)
 
     for name in ("discharge_temp", "liquid_temp", *DRIVERS):
         out[name] = reading(name)
     zone = reading("return_air_temp")
     if "box_temp" in sub:
-        zone = np.where(np.isnan(zone), sub["box_temp"].to_numpy(), zone)
+        zone = np.where(np.isnan(zone), sub["box_temp"], zone)
         out["return_air_temp"] = zone
     outdoor = out["outdoor_air_temp"]
     out["condensing_approach"] = out["t_cond"] - outdoor
@@ -115,37 +111,34 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     leaving = reading("condenser_leaving_air_temp")
     out["condenser_air_rise"] = leaving - outdoor
     if "liquid_pressure" in sub and "discharge_pressure" in sub:
-        out["liquid_line_drop"] = reading("discharge_pressure") - reading("liquid_pressure")
+        out["liquid_line_drop"] = sub["discharge_pressure"] - sub["liquid_pressure"]
     else:
         out["liquid_line_drop"] = nan
 
-    power = _column(sub, "compressor_power")
     air = vs.AirReadings(
         return_air_temp=zone,
-        return_air_humidity=_column(sub, "return_air_humidity"),
+        return_air_humidity=_present(sub, "return_air_humidity"),
         supply_air_temp=supply,
         outdoor_air_temp=outdoor,
         condenser_leaving_air_temp=leaving,
         pressure=unit.atmospheric_pressure,
     )
-    if air.return_air_humidity is not None:
-        air = vs.AirReadings(**{**air.__dict__, "return_air_humidity": air.return_air_humidity})
-    virtual = vs.compute(
+    virtual, _ = vs.compute_arrays(
         states,
-        sub["suction_pressure"].to_numpy(),
+        sub["suction_pressure"],
         compressor_map=unit.compressor_map,
-        compressor_power=None if power is None else power.to_numpy(),
-        compressor_speed=_column(sub, "compressor_speed"),
+        compressor_power=_present(sub, "compressor_power"),
+        compressor_speed=_present(sub, "compressor_speed"),
         air=air if air.return_air_humidity is not None else _dry_air(air),
         air_tables=True,  # 0.2 % of HAPropsSI, ~50x faster for a unit-day's few hundred samples
     )
-    out["volumetric_efficiency_ratio"] = virtual["volumetric_efficiency_ratio"].to_numpy()
     # the map assumes a sound compressor: scale its capacity by the measured pumping share
-    ratio = virtual["volumetric_efficiency_ratio"].to_numpy()
-    capacity = virtual["cooling_capacity"].to_numpy()
+    ratio = virtual["volumetric_efficiency_ratio"]
+    capacity = virtual["cooling_capacity"]
+    out["volumetric_efficiency_ratio"] = ratio
     out["cooling_capacity"] = np.where(np.isfinite(ratio), capacity * ratio, capacity)
-    out["compressor_power"] = virtual["compressor_power"].to_numpy()
-    out["cop"] = virtual["cop"].to_numpy()
+    out["compressor_power"] = virtual["compressor_power"]
+    out["cop"] = virtual["cop"]
     out["condenser_airflow_ratio"] = _ratio(
         virtual["virtual_condenser_airflow"], unit.condenser_airflow_m3_s
     )
@@ -157,7 +150,27 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     wet = ~(out["superheat"] >= MIN_SUPERHEAT_FOR_ENTHALPY_K)
     for name in ENTHALPY_FEATURES:
         out[name] = np.where(wet, np.nan, out[name])
-    return pd.DataFrame(out, index=sub.index)
+    return _frame(out, index)
+
+
+def _selected_columns(grid: pd.DataFrame, selected: np.ndarray) -> dict[str, np.ndarray]:
+    """Column name -> the readings of the selected rows, from one copy of the grid's values."""
+    values = grid.to_numpy(dtype=float).T[:, selected]
+    return dict(zip(grid.columns, values, strict=True))
+
+
+def _present(columns: dict[str, np.ndarray], name: str) -> np.ndarray | None:
+    """The column, None when missing or without a single reading."""
+    values = columns.get(name)
+    return None if values is None or np.isnan(values).all() else values
+
+
+def _frame(columns: dict[str, np.ndarray], index: pd.Index) -> pd.DataFrame:
+    """A float frame built from one 2-D block (one copy of the columns, no per-column work)."""
+    values = np.empty((len(columns), len(index)))
+    for row, column in zip(values, columns.values(), strict=True):
+        row[...] = column
+    return pd.DataFrame(values.T, index=index, columns=list(columns), copy=False)
 
 
 def _dry_air(air: vs.AirReadings) -> vs.AirReadings:
@@ -169,8 +182,7 @@ def _dry_air(air: vs.AirReadings) -> vs.AirReadings:
     )
 
 
-def _ratio(values: pd.Series, design: float | None) -> np.ndarray:
-    values = values.to_numpy(dtype=float)
+def _ratio(values: np.ndarray, design: float | None) -> np.ndarray:
     if design is None or not np.isfinite(design) or design <= 0:
         return np.full(len(values), np.nan)
     return values / design

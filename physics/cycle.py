@@ -50,6 +50,9 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "flags": ("", "reasons a sample is incomplete or implausible; empty when sound (categorical)"),
 }
 
+#: The numeric columns of :data:`COLUMNS` (all but ``flags``), in order.
+VALUE_COLUMNS: tuple[str, ...] = tuple(name for name in COLUMNS if name != "flags")
+
 # Per-sample flags: bit -> readable reason.
 MISSING_SUCTION_PRESSURE = 1 << 0
 MISSING_DISCHARGE_PRESSURE = 1 << 1
@@ -133,14 +136,15 @@ def _as_array(values, length: int) -> np.ndarray:
     return array.ravel().copy()
 
 
-def _index_and_length(values) -> tuple[pd.Index | None, int]:
-    """The first Series' index and the samples' count (1 when every input is a scalar)."""
-    index, lengths = None, [np.size(v) for v in values if v is not None and np.ndim(v) > 0]
-    for value in values:
-        if isinstance(value, pd.Series):
-            index = value.index
-            break
-    return index, max(lengths) if lengths else 1
+def _first_index(values) -> pd.Index | None:
+    """The first Series' index, None when no input is a Series."""
+    return next((v.index for v in values if isinstance(v, pd.Series)), None)
+
+
+def _length(values) -> int:
+    """The samples' count (1 when every input is a scalar)."""
+    lengths = [np.size(v) for v in values if v is not None and np.ndim(v) > 0]
+    return max(lengths) if lengths else 1
 
 
 def cycle_states(
@@ -195,36 +199,91 @@ def cycle_states(
     Refrigeration, chapter on refrigerant system practices). The condensing and evaporating
     temperatures are dew points, as in AHRI Standard 540 compressor ratings.
     """
-    fluid = get_refrigerant(refrigerant)
-    if method not in _LOOKUPS:
-        raise ValueError(f"method must be 'fast' or 'exact', not {method!r}")
-    inputs = {
-        "p_suc": suction_pressure,
-        "p_dis": discharge_pressure,
-        "t_suc": suction_temp,
-        "t_liq": liquid_temp,
-        "t_dis": discharge_temp,
-        "p_liq": liquid_pressure,
-    }
-    index, n = _index_and_length(inputs.values())
-    arrays = {name: _as_array(v, n) for name, v in inputs.items() if v is not None}
-    given = frozenset(arrays)
-    columns = {name: np.empty(n) for name in COLUMNS if name != "flags"}
-    flags = np.zeros(n, dtype=np.int64)
-    for start in range(0, n, BLOCK_SAMPLES):
-        block = slice(start, min(start + BLOCK_SAMPLES, n))
-        results, flags[block] = _cycle_block(
-            fluid, _LOOKUPS[method], {k: v[block] for k, v in arrays.items()}, given
-        )
-        for name, values in results.items():
-            columns[name][block] = values
-    frame = pd.DataFrame(columns, index=index, copy=False)
+    inputs = _inputs(
+        suction_pressure,
+        discharge_pressure,
+        suction_temp,
+        liquid_temp,
+        discharge_temp,
+        liquid_pressure,
+    )
+    values, flags = _cycle_values(refrigerant, inputs, method)
+    frame = pd.DataFrame(
+        values.T, index=_first_index(inputs.values()), columns=VALUE_COLUMNS, copy=False
+    )
     frame["flags"] = _flag_text(flags)
     return frame
 
 
-def _cycle_block(fluid, lookup, arrays: dict[str, np.ndarray], given: frozenset[str]):
-    """The cycle of one block of samples: the columns of :data:`COLUMNS` and the flag bits."""
+def cycle_arrays(
+    refrigerant,
+    suction_pressure,
+    discharge_pressure,
+    suction_temp=None,
+    liquid_temp=None,
+    discharge_temp=None,
+    liquid_pressure=None,
+    method: str = "fast",
+) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """:func:`cycle_states` without the frame, for callers that go on with arrays.
+
+    Returns
+    -------
+    columns : dict
+        Column of :data:`VALUE_COLUMNS` -> values per sample, as in :func:`cycle_states`.
+    flags : numpy.ndarray of int64
+        The flag bits per sample (:func:`describe_flags` reads them).
+    """
+    inputs = _inputs(
+        suction_pressure,
+        discharge_pressure,
+        suction_temp,
+        liquid_temp,
+        discharge_temp,
+        liquid_pressure,
+    )
+    values, flags = _cycle_values(refrigerant, inputs, method)
+    return dict(zip(VALUE_COLUMNS, values, strict=True)), flags
+
+
+def _inputs(p_suc, p_dis, t_suc, t_liq, t_dis, p_liq) -> dict[str, object]:
+    return {
+        "p_suc": p_suc,
+        "p_dis": p_dis,
+        "t_suc": t_suc,
+        "t_liq": t_liq,
+        "t_dis": t_dis,
+        "p_liq": p_liq,
+    }
+
+
+def _cycle_values(refrigerant, inputs: dict, method: str) -> tuple[np.ndarray, np.ndarray]:
+    """The cycle of every sample: values, shape (len(VALUE_COLUMNS), n), and the flag bits."""
+    fluid = get_refrigerant(refrigerant)
+    if method not in _LOOKUPS:
+        raise ValueError(f"method must be 'fast' or 'exact', not {method!r}")
+    n = _length(inputs.values())
+    arrays = {name: _as_array(v, n) for name, v in inputs.items() if v is not None}
+    given = frozenset(arrays)
+    values = np.empty((len(VALUE_COLUMNS), n))
+    flags = np.zeros(n, dtype=np.int64)
+    for start in range(0, n, BLOCK_SAMPLES):
+        block = slice(start, min(start + BLOCK_SAMPLES, n))
+        flags[block] = _cycle_block(
+            fluid,
+            _LOOKUPS[method],
+            {k: v[block] for k, v in arrays.items()},
+            given,
+            values[:, block],
+        )
+    return values, flags
+
+
+def _cycle_block(
+    fluid, lookup, arrays: dict[str, np.ndarray], given: frozenset[str], out: np.ndarray
+) -> np.ndarray:
+    """The cycle of one block of samples: writes the rows of ``out`` (one per column of
+    :data:`VALUE_COLUMNS`) and returns the flag bits."""
     n = arrays["p_suc"].size
     p_suc, p_dis = arrays["p_suc"], arrays["p_dis"]
     nan = np.full(n, np.nan)
@@ -325,7 +384,9 @@ def _cycle_block(fluid, lookup, arrays: dict[str, np.ndarray], given: frozenset[
             "second_law_efficiency": cop / cop_carnot,
             "pressure_ratio": p_dis / p_suc,
         }
-    return columns, flags
+    for row, name in zip(out, VALUE_COLUMNS, strict=True):
+        row[...] = columns[name]
+    return flags
 
 
 def _flag_text(flags: np.ndarray) -> pd.Categorical:
@@ -334,4 +395,4 @@ def _flag_text(flags: np.ndarray) -> pd.Categorical:
     codes = np.zeros(1 << len(FLAG_REASONS), dtype=np.int16)
     codes[present] = np.arange(present.size)
     texts = [describe_flags(int(mask)) for mask in present]
-    return pd.Categorical.from_codes(codes[flags], categories=texts)
+    return pd.Categorical.from_codes(codes[flags], categories=texts, validate=False)

@@ -768,6 +768,10 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "flags": ("", "reasons a virtual sensor is missing or doubtful; empty when sound"),
 }
 
+#: The numeric columns of :data:`COLUMNS` (all but ``flags``), in order.
+VALUE_COLUMNS: tuple[str, ...] = tuple(name for name in COLUMNS if name != "flags")
+_ROW = {name: k for k, name in enumerate(VALUE_COLUMNS)}
+
 # Per-sample flags: bit -> readable reason.
 OUTSIDE_MAP_ENVELOPE = 1 << 0
 POWER_NOT_POSITIVE = 1 << 1
@@ -846,11 +850,52 @@ def compute(
     DataFrame
         The columns of :data:`COLUMNS`, same index as ``states``; NaN where inputs are missing.
     """
-    n = len(states)
+    values, flags = _compute_values(
+        states,
+        suction_pressure,
+        compressor_map,
+        compressor_power,
+        compressor_speed,
+        shell_loss_fraction,
+        charge_model,
+        air,
+        extrapolate,
+        air_tables,
+    )
+    frame = pd.DataFrame(values.T, index=states.index, columns=VALUE_COLUMNS, copy=False)
+    frame["flags"] = _flag_text(flags)
+    return frame
+
+
+def compute_arrays(states, suction_pressure, **options) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """:func:`compute` without the frames, for callers that go on with arrays.
+
+    ``states`` maps the columns of ``cycle_states`` to values: a frame, or the columns of
+    :func:`rimewatch.physics.cycle.cycle_arrays`; ``options`` are those of :func:`compute`.
+    Returns column of :data:`VALUE_COLUMNS` -> values, and the flag bits (:data:`FLAG_REASONS`).
+    """
+    values, flags = _compute_values(states, suction_pressure, **options)
+    return dict(zip(VALUE_COLUMNS, values, strict=True)), flags
+
+
+def _compute_values(
+    states,
+    suction_pressure,
+    compressor_map: CompressorMap | None = None,
+    compressor_power=None,
+    compressor_speed=None,
+    shell_loss_fraction: float = DEFAULT_SHELL_LOSS_FRACTION,
+    charge_model: ChargeModel | None = None,
+    air: AirReadings | None = None,
+    extrapolate: bool = False,
+    air_tables: bool | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Values, shape (len(VALUE_COLUMNS), n), and flag bits of :func:`compute`."""
     names = ["t_evap", "t_cond", "h1", "h2", "h3", "h4"]
     names += ["superheat"] if compressor_map is not None else []
     names += ["subcooling", "superheat"] if charge_model is not None else []
-    inputs = {name: states[name].to_numpy(dtype=float) for name in names}
+    inputs = {name: np.asarray(states[name], dtype=float) for name in names}
+    n = len(inputs["t_evap"])
     inputs["suction_pressure"] = _column(suction_pressure, n)
     inputs["power"] = _column(compressor_power, n)
     inputs["speed"] = _column(compressor_speed, n)
@@ -861,7 +906,7 @@ def compute(
         for field in fields(AirReadings):
             if field.name != "pressure":
                 inputs[field.name] = _column(getattr(air, field.name), n)
-    out = {column: np.full(n, np.nan) for column in COLUMNS if column != "flags"}
+    out = np.full((len(VALUE_COLUMNS), n), np.nan)
     flags = np.zeros(n, dtype=np.int64)
     settings = (compressor_map, shell_loss_fraction, charge_model, extrapolate)
     for start in range(0, n, BLOCK_SAMPLES):
@@ -873,9 +918,8 @@ def compute(
                 _air_side(part, moist, values["cooling_capacity"], values["heat_rejection"])
             )
         for column, array in values.items():
-            out[column][block] = array
-    out["flags"] = _flag_text(flags)
-    return pd.DataFrame(out, index=states.index, copy=False)
+            out[_ROW[column], block] = array
+    return out, flags
 
 
 def _refrigerant_side(
