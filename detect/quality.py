@@ -136,17 +136,14 @@ def service_ranges(unit: UnitInfo) -> dict[str, tuple[float, float]]:
 def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, pd.DataFrame]:
     """(grid with implausible values set to NaN, boolean frame of the blanked samples)."""
     ranges = service_ranges(unit)
+    low = np.array([ranges.get(role, (-np.inf, np.inf))[0] for role in grid.columns])
+    high = np.array([ranges.get(role, (-np.inf, np.inf))[1] for role in grid.columns])
     values = grid.to_numpy(dtype=float, copy=True)
-    bad = np.zeros(values.shape, dtype=bool)
-    for j, role in enumerate(grid.columns):
-        if role in ranges:
-            low, high = ranges[role]
-            column = values[:, j]
-            bad[:, j] = ~np.isnan(column) & ((column < low) | (column > high))
+    bad = (values < low) | (values > high)  # NaN compares false: a gap is not out of range
     values[bad] = np.nan
     return (
-        pd.DataFrame(values, index=grid.index, columns=grid.columns),
-        pd.DataFrame(bad, index=grid.index, columns=grid.columns),
+        pd.DataFrame(values, index=grid.index, columns=grid.columns, copy=False),
+        pd.DataFrame(bad, index=grid.index, columns=grid.columns, copy=False),
     )
 
 
@@ -154,7 +151,9 @@ def _hours(index: pd.DatetimeIndex) -> pd.DatetimeIndex:
     return index.floor("1h")
 
 
-_HOUR_NS = 3_600_000_000_000
+#: ticks of a DatetimeIndex unit per hour
+_TICKS_PER_HOUR = {"s": 3_600, "ms": 3_600_000, "us": 3_600_000_000, "ns": 3_600_000_000_000}
+_ONE_HOUR = pd.offsets.Hour(1)
 
 
 def hour_slots(index: pd.DatetimeIndex, hours: pd.DatetimeIndex) -> np.ndarray:
@@ -165,16 +164,18 @@ def hour_slots(index: pd.DatetimeIndex, hours: pd.DatetimeIndex) -> np.ndarray:
     """
     regular = (
         len(hours) > 0
-        and hours.freq == pd.offsets.Hour(1)
+        and hours.freq == _ONE_HOUR
         and str(hours.tz) == "UTC"
         and str(index.tz) == "UTC"
-        and hours.as_unit("ns").asi8[0] % _HOUR_NS == 0
+        and hours.asi8[0] % _TICKS_PER_HOUR[hours.unit] == 0
     )
     if not regular:
         return hours.get_indexer(_hours(index))
-    slot = (index.as_unit("ns").asi8 - hours.as_unit("ns").asi8[0]) // _HOUR_NS
+    hour = _TICKS_PER_HOUR[index.unit]
+    first = hours.asi8[0] // _TICKS_PER_HOUR[hours.unit] * hour  # in the ticks of ``index``
+    slot = (index.asi8 - first) // hour
     slot[(slot < 0) | (slot >= len(hours))] = -1
-    return slot.astype(np.intp)
+    return slot.astype(np.intp, copy=False)
 
 
 def check_quality(
@@ -199,33 +200,33 @@ def check_quality(
         implausible-combination checks); optional.
     """
     out = HourlyFindings.empty(hours)
+    columns = _columns(grid)
     points = [c for c in grid.columns if c in SERVICE_RANGES and c != "compressor_status"]
+    values = np.array([columns[role] for role in points]).reshape(len(points), len(grid))
+    bad = blanked.to_numpy(dtype=bool).T[[blanked.columns.get_loc(role) for role in points]]
     slot = hour_slots(grid.index, hours)
-    inside = slot >= 0
-    bad_values = blanked[points].to_numpy()[inside]
-    present_values = grid[points].notna().to_numpy()[inside] | bad_values
-    cells = (slot[inside][:, None] * len(points) + np.arange(len(points))).ravel()
-    shape, size = (len(hours), len(points)), len(hours) * len(points)
-    counts = np.bincount(cells, present_values.ravel(), size).reshape(shape)
-    bad_counts = np.bincount(cells, bad_values.ravel(), size).reshape(shape)
-    any_data = counts.sum(axis=1) > 0
+    hourly_count = _hourly_counter(slot, len(hours))  # points x hours
+    measured = ~np.isnan(values)
+    counts = hourly_count(measured | bad)
+    bad_counts = hourly_count(bad)
+    any_data = counts.sum(axis=0) > 0
 
     # offline: the whole unit, then single points while others report
     out.set(
         finding_key("sensor_fault", "all:offline"),
-        hours,
+        np.ones(len(hours), dtype=bool),
         {hours[k]: Finding(1.0, 1.0, "no readings at all this hour") for k in _where(~any_data)},
     )
     for j, role in enumerate(points):
-        silent = (counts[:, j] == 0) & any_data
+        silent = (counts[j] == 0) & any_data
         out.set(
             finding_key("sensor_fault", f"{role}:offline"),
             any_data,
             {hours[k]: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in _where(silent)},
         )
         # out of range
-        reported = counts[:, j] > 0
-        share = np.divide(bad_counts[:, j], counts[:, j], out=np.zeros(len(hours)), where=reported)
+        reported = counts[j] > 0
+        share = np.divide(bad_counts[j], counts[j], out=np.zeros(len(hours)), where=reported)
         found = np.flatnonzero(reported & (share >= OUT_OF_RANGE_SHARE))
         out.set(
             finding_key("sensor_fault", f"{role}:out_of_range"),
@@ -240,27 +241,75 @@ def check_quality(
             },
         )
 
-    _check_stuck(out, grid, running_mask, points, hours, slot)
-    _check_standstill_drift(out, grid, standstill_mask, unit, hours, slot)
+    run = running_mask.to_numpy(dtype=bool)
+    checked = hourly_count(measured) > 0
+    flat = _flat(values, points, columns.get("compressor_status"), run)
+    stuck = hourly_count(flat) > 0
+    for j, role in enumerate(points):
+        window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
+        found = {
+            hours[k]: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
+            for k in _where(stuck[j] & checked[j])
+        }
+        out.set(finding_key("sensor_fault", f"{role}:stuck"), checked[j], found)
+    _check_standstill_drift(out, columns, standstill_mask, unit, hours, slot)
     if features is not None and steady_mask is not None:
         _check_implausible(out, features, steady_mask, hours)
     return out
+
+
+def _columns(frame: pd.DataFrame, names=None) -> dict[str, np.ndarray]:
+    """Columns ``names`` (default all) of a numeric frame as float arrays (one conversion)."""
+    rows = frame.to_numpy(dtype=float).T
+    if names is None:
+        return dict(zip(frame.columns, rows, strict=True))
+    return {name: rows[frame.columns.get_loc(name)] for name in names}
+
+
+def _hourly_counter(slot: np.ndarray, n_hours: int):
+    """A function counting true flags (points x samples) per point and hour slot (-1 ignored)."""
+    rows = np.flatnonzero(slot >= 0)
+    rows = rows[np.argsort(slot[rows], kind="stable")]  # grouped by hour
+    if len(rows) and rows[-1] - rows[0] == len(rows) - 1:  # sorted and contiguous: a slice
+        rows = slice(rows[0], rows[-1] + 1)
+    grouped = slot[rows]
+    starts = np.flatnonzero(np.diff(grouped, prepend=-1))  # first sample of each hour present
+
+    def count(flags: np.ndarray) -> np.ndarray:
+        counts = np.zeros((len(flags), n_hours), dtype=int)
+        if len(starts):
+            counts[:, grouped[starts]] = np.add.reduceat(flags[:, rows], starts, axis=1, dtype=int)
+        return counts
+
+    return count
 
 
 def _where(mask: np.ndarray) -> list[int]:
     return np.flatnonzero(mask).tolist()
 
 
-def _run_lengths(values: np.ndarray) -> np.ndarray:
-    """For each sample, how many samples in a row up to it hold exactly its value (0 for NaN)."""
-    n = len(values)
-    if n == 0:
-        return np.zeros(0, dtype=int)
-    starts = np.ones(n, dtype=bool)
-    starts[1:] = values[1:] != values[:-1]  # NaN != NaN: a gap always starts a new run
-    position = np.arange(n)
-    run_start = np.maximum.accumulate(np.where(starts, position, 0))
-    return np.where(np.isnan(values), 0, position - run_start + 1)
+def _held(rows: np.ndarray, window: np.ndarray) -> np.ndarray:
+    """True where a row has held exactly the same value for at least its ``window`` (one per
+    row, >= 2) samples in a row, up to and including this one; NaN never counts."""
+    held = np.zeros(rows.size + 1, dtype=int)  # +1 where a held stretch starts, -1 after it
+    if rows.size == 0:
+        return held[:-1].reshape(rows.shape) > 0
+    n = rows.shape[1]
+    flat = rows.ravel()
+    starts = np.ones(flat.size, dtype=bool)
+    np.not_equal(flat[1:], flat[:-1], out=starts[1:])  # NaN != NaN: a gap starts a new run
+    starts[::n] = True  # each row starts afresh
+    first = np.flatnonzero(starts)
+    length = np.diff(first, append=flat.size)
+    long = length >= window.min()
+    first, length = first[long], length[long]
+    need = window[first // n]
+    long = (length >= need) & ~np.isnan(flat[first])
+    first, length, need = first[long], length[long], need[long]
+    if first.size:
+        held[first + need - 1] += 1
+        held[first + length] -= 1
+    return np.cumsum(held[:-1]).reshape(rows.shape) > 0
 
 
 def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
@@ -269,69 +318,59 @@ def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
     return total[upper] - total[np.maximum(upper - window, 0)]
 
 
-def _check_stuck(out, grid, running_mask, points, hours, hour_index) -> None:
-    status = grid.get("compressor_status")
-    run = running_mask.to_numpy(dtype=bool)
-    if status is not None:
-        switches = np.abs(np.diff(status.to_numpy(dtype=float), prepend=np.nan)) > 0
-    moved = None  # the same for every refrigerant-side point: computed once
-    for role in points:
-        values = grid[role].to_numpy(dtype=float)
-        window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
-        if role in RUNNING_ONLY_POINTS:
-            lengths = np.zeros(len(values), dtype=int)
-            lengths[run] = _run_lengths(values[run])
-        else:
-            lengths = _run_lengths(values)
-        flat = lengths >= window
-        if role not in AMBIENT_POINTS and role not in RUNNING_ONLY_POINTS and status is not None:
-            if moved is None:
-                moved = (_window_sum(switches, window) > 0) | (
-                    _window_sum(run, window) >= window // 2
-                )
-            flat &= moved
-        present = ~np.isnan(values) & (hour_index >= 0)
-        checked = np.zeros(len(hours), dtype=bool)
-        checked[hour_index[present]] = True
-        stuck = np.zeros(len(hours), dtype=bool)
-        stuck[hour_index[flat & (hour_index >= 0)]] = True
-        found = {
-            hours[k]: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
-            for k in _where(stuck & checked)
-        }
-        out.set(finding_key("sensor_fault", f"{role}:stuck"), checked, found)
+def _flat(values, points, status, run) -> np.ndarray:
+    """(points x samples) true where a point has held exactly the same value for its stuck
+    window while it had to move (see the module docstring)."""
+    ambient = np.array([role in AMBIENT_POINTS for role in points], dtype=bool)
+    running_only = np.array([role in RUNNING_ONLY_POINTS for role in points], dtype=bool)
+    window = np.where(ambient, STUCK_AMBIENT_MINUTES, STUCK_MINUTES)
+    flat = np.zeros(values.shape, dtype=bool)
+    always = ~running_only
+    flat[always] = _held(values[always], window[always])
+    if running_only.any():  # their runs count running samples only
+        flat[np.ix_(running_only, run)] = _held(values[running_only][:, run], window[running_only])
+    must_move = ~ambient & ~running_only
+    if status is not None and must_move.any():
+        switches = np.abs(np.diff(status, prepend=np.nan)) > 0
+        moved = (_window_sum(switches, STUCK_MINUTES) > 0) | (
+            _window_sum(run, STUCK_MINUTES) >= STUCK_MINUTES // 2
+        )
+        flat[must_move] &= moved
+    return flat
 
 
-def _coldest_surroundings(grid: pd.DataFrame) -> np.ndarray | None:
+def _coldest_surroundings(columns: dict[str, np.ndarray]) -> np.ndarray | None:
     """The lowest air temperature around the unit per sample; NaN where none is known."""
     names = ("outdoor_air_temp", "return_air_temp", "box_temp")
-    temps = [grid[c].to_numpy(dtype=float) for c in names if c in grid]
+    temps = [columns[c] for c in names if c in columns]
     if not temps:
         return None
     return np.fmin.reduce(temps)
 
 
-def _check_standstill_drift(out, grid, standstill_mask, unit, hours, hour_index) -> None:
-    pressures = [c for c in ("suction_pressure", "discharge_pressure") if c in grid]
-    coldest = _coldest_surroundings(grid)
+def _check_standstill_drift(out, columns, standstill_mask, unit, hours, hour_index) -> None:
+    pressures = [c for c in ("suction_pressure", "discharge_pressure") if c in columns]
+    coldest = _coldest_surroundings(columns)
     if not pressures or coldest is None:
         return
     still = standstill_mask.to_numpy(dtype=bool)
     if not still.any():
         for role in pressures:
-            out.set(finding_key("sensor_fault", f"{role}:drift"), [], {})
+            out.set(finding_key("sensor_fault", f"{role}:drift"), np.zeros(len(hours), bool), {})
         return
     slot = hour_index[still]
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
     air, _ = hourly_medians(coldest[still], slot, len(hours))
     judged = (rows >= MIN_STANDSTILL_SAMPLES) & ~np.isnan(air)
+    medians = [hourly_medians(columns[role][still], slot, len(hours))[0] for role in pressures]
+    # one lookup for both pressures (the saturation temperature is taken sample by sample)
+    dew = fast.saturation_temperature(
+        unit.refrigerant, np.concatenate([m[judged] for m in medians]), "dew"
+    )
     saturation = {}
-    for role in pressures:
-        medians, _ = hourly_medians(grid[role].to_numpy(dtype=float)[still], slot, len(hours))
+    for role, part in zip(pressures, np.split(dew, len(pressures)), strict=True):
         saturation[role] = np.full(len(hours), np.nan)
-        saturation[role][judged] = fast.saturation_temperature(
-            unit.refrigerant, medians[judged], "dew"
-        )
+        saturation[role][judged] = part
     for role in pressures:
         others = [saturation[o] for o in pressures if o != role]
         off_air = saturation[role] - air
@@ -385,11 +424,14 @@ def hourly_medians(values: np.ndarray, slot: np.ndarray, n_hours: int):
 
 
 def _check_implausible(out, features, steady_mask, hours) -> None:
-    steady = steady_mask.reindex(features.index, fill_value=False).to_numpy(dtype=bool)
-    slot = hour_slots(features.index[steady], hours)
+    if not steady_mask.index.equals(features.index):
+        steady_mask = steady_mask.reindex(features.index, fill_value=False)
+    steady = steady_mask.to_numpy(dtype=bool)
+    slot = hour_slots(features.index, hours)[steady]
+    columns = _columns(features, ("superheat", "subcooling", "discharge_temp", "t_cond"))
 
     def column(name):
-        return features[name].to_numpy(dtype=float)[steady]
+        return columns[name][steady]
 
     judged_values = {
         "superheat": column("superheat"),

@@ -59,20 +59,45 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
         raise ValueError("align needs a frame indexed by timezone-aware time")
     if frame.empty:
         return frame.astype(float)
-    frame = frame.sort_index().astype(float)
-    stamps = frame.index.as_unit("ns").asi8
-    minute = 60_000_000_000
-    if frame.index.is_unique and not (stamps % minute).any():
+    index = frame.index
+    stamps = index.asi8
+    minute = 60 * _TICKS_PER_SECOND[index.unit]
+    if index.is_unique and not (stamps % minute).any():
         # readings already on whole minutes (one per bin): the bin means are the readings
-        bins = pd.date_range(frame.index[0], frame.index[-1], freq=GRID, name=frame.index.name)
-        grid = frame.reindex(bins.as_unit(frame.index.unit))
+        first = stamps.min()
+        slots = (stamps - first) // minute
+        bins = pd.date_range(
+            pd.Timestamp(first, unit=index.unit, tz=index.tz),
+            periods=int(slots.max()) + 1,
+            freq=GRID,
+            name=index.name,
+            unit=index.unit,
+        )
+        values = np.full((frame.shape[1], len(bins)), np.nan)  # one row per column
+        values[:, slots] = frame.to_numpy(dtype=float).T
     else:
-        grid = frame.resample(GRID).mean()
+        grid = frame.sort_index().astype(float).resample(GRID).mean()
+        bins, values = grid.index, grid.to_numpy().T.copy()
     if hold_minutes > 0:
-        grid = grid.ffill(limit=hold_minutes)
-    if "compressor_status" in grid:
-        grid["compressor_status"] = grid["compressor_status"].round()
-    return grid
+        values = _hold(values, hold_minutes)
+    if "compressor_status" in frame.columns:
+        status = frame.columns.get_loc("compressor_status")
+        values[status] = np.round(values[status])
+    return pd.DataFrame(values.T, index=bins, columns=frame.columns, copy=False)
+
+
+#: ticks of a DatetimeIndex unit per second
+_TICKS_PER_SECOND = {"s": 1, "ms": 1_000, "us": 1_000_000, "ns": 1_000_000_000}
+
+
+def _hold(rows: np.ndarray, limit: int) -> np.ndarray:
+    """Each row with its gaps filled by the last value at most ``limit`` samples before (NaN
+    beyond), as pandas' ``ffill(limit=limit)`` does."""
+    held = rows.copy()
+    for back in range(1, limit + 1):
+        gap = np.isnan(held[:, back:])
+        held[:, back:][gap] = rows[:, :-back][gap]
+    return held
 
 
 def running(grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S) -> pd.Series:
@@ -114,15 +139,50 @@ def steady(
     """
     limits = STEADY_LIMITS_K if limits is None else limits
     run = running_mask.to_numpy(dtype=bool)
-    ok = run.copy()
-    counts = running_mask.astype(float).rolling(window_minutes, min_periods=1).sum().to_numpy()
-    ok &= counts >= min_samples
+    ok = run & (_window_sum(run, window_minutes) >= min_samples)
     names = [name for name in limits if name in signals]
-    if names:  # one rolling pass over every judged signal (the same per-column computation)
-        values = signals[names].to_numpy(dtype=float)
-        values = pd.DataFrame(np.where(run[:, None], values, np.nan), index=signals.index)
-        spread = values.rolling(window_minutes, min_periods=min_samples).std().to_numpy()
-        present = values.notna().to_numpy()
-        limit = np.array([limits[name] for name in names])
-        ok &= (present & (spread <= limit)).all(axis=1)
+    if names:
+        columns = signals.to_numpy(dtype=float).T
+        rows = columns[[signals.columns.get_loc(name) for name in names]]
+        rows[:, ~run] = np.nan
+        spread = _moving_std(rows, window_minutes, min_samples)
+        limit = np.array([limits[name] for name in names])[:, None]
+        ok &= (~np.isnan(rows) & (spread <= limit)).all(axis=0)
     return pd.Series(ok, index=signals.index, name="steady")
+
+
+def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
+    """Number of true flags among the ``window`` samples ending at each sample."""
+    total = np.concatenate(([0], np.cumsum(flags)))
+    upper = np.arange(1, len(flags) + 1)
+    return total[upper] - total[np.maximum(upper - window, 0)]
+
+
+def _moving_std(rows: np.ndarray, window: int, min_samples: int) -> np.ndarray:
+    """Sample standard deviation (ddof 1) of each row over the ``window`` samples ending at each
+    sample, NaN ignored; NaN where fewer than ``min_samples`` (or 2) samples are present.
+
+    The deviations are taken from the window's latest present value: both moments then stay
+    small, so the variance keeps full precision (a constant window gives exactly 0).
+    """
+    n = rows.shape[1]
+    present = ~np.isnan(rows)
+    latest = np.maximum.accumulate(np.where(present, np.arange(n), 0), axis=1)
+    reference = np.take_along_axis(rows, latest, axis=1)
+    lead = window - 1  # samples before the first one count as absent
+    values = np.zeros((len(rows), n + lead))
+    np.copyto(values[:, lead:], rows, where=present)
+    weights = np.zeros((len(rows), n + lead))
+    weights[:, lead:] = present
+    count, first, second = (np.zeros(rows.shape) for _ in range(3))
+    for back in range(window):
+        deviation = values[:, back : back + n] - reference
+        deviation *= weights[:, back : back + n]
+        count += weights[:, back : back + n]
+        first += deviation
+        deviation *= deviation
+        second += deviation
+    with np.errstate(invalid="ignore", divide="ignore"):
+        variance = (second - first * first / count) / (count - 1)
+    variance[count < max(min_samples, 2)] = np.nan
+    return np.sqrt(np.maximum(variance, 0.0))
