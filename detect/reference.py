@@ -180,10 +180,14 @@ def envelope_positions(models, x: np.ndarray) -> np.ndarray:
     high = np.array([[m.envelope[d][1] for d in drivers] for m in models])
     absolute = np.array([EXTRAPOLATION_MARGIN.get(d, 0.0) for d in drivers])
     margin = np.maximum(EXTRAPOLATION_MARGIN_SHARE * (high - low), absolute)
-    values = x[:, None, :]  # rows x models x drivers
+    position = np.zeros((len(x), len(models)), dtype=int)
+    # rows inside the envelope every model shares are 0 for all: judge only the others
+    rest = ~((x >= low.max(axis=0)) & (x <= high.min(axis=0))).all(axis=1)
+    values = x[rest][:, None, :]  # rows x models x drivers
     outside = (values < low) | (values > high)
     beyond = (values < low - margin) | (values > high + margin) | ~np.isfinite(values)
-    return np.where(beyond, 2, outside.astype(int)).max(axis=2, initial=0)
+    position[rest] = np.where(beyond, 2, outside.astype(int)).max(axis=2, initial=0)
+    return position
 
 
 def _fit_one(feature: str, drivers: tuple[str, ...], x: np.ndarray, y: np.ndarray, hours):
