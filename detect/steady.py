@@ -68,36 +68,37 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
         slots = (stamps - first) // minute
         bins = pd.date_range(
             pd.Timestamp(first, unit=index.unit, tz=index.tz),
-            periods=int(slots.max()) + 1,
+            periods=int(slots[-1] if index.is_monotonic_increasing else slots.max()) + 1,
             freq=GRID,
             name=index.name,
             unit=index.unit,
         )
-        values = np.full((frame.shape[1], len(bins)), np.nan)  # one row per column
-        values[:, slots] = frame.to_numpy(dtype=float).T
+        if len(bins) == len(index) and index.is_monotonic_increasing:  # no bin missing
+            values = frame.to_numpy(dtype=float, copy=True)
+        else:
+            values = np.full((len(bins), frame.shape[1]), np.nan)
+            values[slots] = frame.to_numpy(dtype=float)
     else:
         grid = frame.sort_index().astype(float).resample(GRID).mean()
-        bins, values = grid.index, grid.to_numpy().T.copy()
+        bins, values = grid.index, grid.to_numpy(copy=True)
     if hold_minutes > 0:
-        values = _hold(values, hold_minutes)
+        _hold(values, hold_minutes)
     if "compressor_status" in frame.columns:
         status = frame.columns.get_loc("compressor_status")
-        values[status] = np.round(values[status])
-    return pd.DataFrame(values.T, index=bins, columns=frame.columns, copy=False)
+        values[:, status] = np.round(values[:, status])
+    return pd.DataFrame(values, index=bins, columns=frame.columns, copy=False)
 
 
 #: ticks of a DatetimeIndex unit per second
 _TICKS_PER_SECOND = {"s": 1, "ms": 1_000, "us": 1_000_000, "ns": 1_000_000_000}
 
 
-def _hold(rows: np.ndarray, limit: int) -> np.ndarray:
-    """Each row with its gaps filled by the last value at most ``limit`` samples before (NaN
+def _hold(values: np.ndarray, limit: int) -> None:
+    """Fill each column's gaps in place with the last value at most ``limit`` samples before (NaN
     beyond), as pandas' ``ffill(limit=limit)`` does."""
-    held = rows.copy()
+    measured = values.copy()
     for back in range(1, limit + 1):
-        gap = np.isnan(held[:, back:])
-        held[:, back:][gap] = rows[:, :-back][gap]
-    return held
+        np.copyto(values[back:], measured[:-back], where=np.isnan(values[back:]))
 
 
 def running(grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S) -> pd.Series:
