@@ -286,32 +286,22 @@ def classify(r: pd.Series, eps: pd.Series, sigma: pd.Series, device_class: str) 
     dict with ``normal`` (probability every feature is inside its band), ``ranking`` [(code,
     share)] best first (empty when no class fits at all), ``deviating`` (features with P0 < 0.05).
     """
-    bands = eps if eps.index.equals(r.index) else eps.reindex(r.index)
-    spreads = sigma if sigma.index.equals(r.index) else sigma.reindex(r.index)
-    return classify_values(
-        list(r.index),
-        r.to_numpy(dtype=float),
-        bands.to_numpy(dtype=float),
-        spreads.to_numpy(dtype=float),
-        device_class,
+    residual = r.to_numpy(dtype=float)
+    bands = (eps if eps.index.equals(r.index) else eps.reindex(r.index)).to_numpy(dtype=float)
+    spreads = (sigma if sigma.index.equals(r.index) else sigma.reindex(r.index)).to_numpy(
+        dtype=float
     )
-
-
-def classify_values(
-    names: list[str],
-    residual: np.ndarray,
-    bands: np.ndarray,
-    spreads: np.ndarray,
-    device_class: str,
-) -> dict:
-    """:func:`classify` of one hour given as feature names and their r, eps and sigma arrays."""
     available = ~(np.isnan(residual) | np.isnan(bands) | np.isnan(spreads))
     probabilities = sign_probabilities(residual[available], bands[available], spreads[available])
-    names = [n for n, ok in zip(names, available.tolist(), strict=True) if ok]
+    return _rank(list(r.index[available]), probabilities, device_class)
+
+
+def _rank(names: list[str], probabilities: dict[str, np.ndarray], device_class: str) -> dict:
+    """:func:`classify` from the sign probabilities of the features judged (``names``)."""
     p = {sign: dict(zip(names, v.tolist(), strict=True)) for sign, v in probabilities.items()}
     normal = float(np.prod(probabilities["0"])) if names else 1.0
     deviating = [n for n in names if p["0"][n] < 0.05]
-    inside = dict(p["0"])
+    inside = p["0"]
     scores = {}
     for code, pattern in PATTERNS[device_class].items():
         used = [f for f in pattern if f in inside]
@@ -451,8 +441,10 @@ def diagnose(
     hours, names = residuals.hours, residuals.features
     out = HourlyFindings(hours, {}, {}, pd.Series(residuals.steady_samples, index=hours))
     values, bands, spreads = residuals.r, residuals.eps, residuals.sigma
+    probabilities = sign_probabilities(values, bands, spreads)  # hours x features, every sign
     known = np.isfinite(values) & np.isfinite(bands) & np.isfinite(spreads)
-    inside = np.where(known, sign_probabilities(values, bands, spreads)["0"], 1.0)
+    inside = np.where(known, probabilities["0"], 1.0)
+    available = ~(np.isnan(values) | np.isnan(bands) | np.isnan(spreads))
     normal_all = np.prod(inside, axis=1)  # every feature judged: the quick test of a sound hour
     bad_at = _faulty_positions(faulty, hours)
     checked = np.isfinite(values).sum(axis=1) >= 3
@@ -475,9 +467,9 @@ def diagnose(
         kept = [names[j] for j in keep]
         r = dict(zip(kept, values[i, keep], strict=True))
         eps = dict(zip(kept, bands[i, keep], strict=True))
-        result = classify_values(
-            kept, values[i, keep], bands[i, keep], spreads[i, keep], device_class
-        )
+        judged = [j for j in keep if available[i, j]]
+        hour = {sign: p[i, judged] for sign, p in probabilities.items()}
+        result = _rank([names[j] for j in judged], hour, device_class)
         for feature, point in SINGLE_SENSOR_FEATURES.items():
             if feature in r and np.isfinite(r[feature]):
                 drift_checked[point][i] = True
