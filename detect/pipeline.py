@@ -78,8 +78,9 @@ def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prep
     if since is not None:
         frame = frame.loc[pd.Timestamp(since) - WARM_UP :]
     grid = steady.align(frame)  # a sorted index: the periods below are slices
-    if until is not None:
-        grid = grid.iloc[: grid.index.searchsorted(pd.Timestamp(until))]
+    end = len(grid) if until is None else grid.index.searchsorted(pd.Timestamp(until))
+    if end < len(grid):
+        grid = grid.iloc[:end]
     first = 0 if since is None else grid.index.searchsorted(pd.Timestamp(since))
     if first == len(grid):
         raise ValueError(f"unit {unit.key}: no readings in the period")
