@@ -125,10 +125,13 @@ def derive_events(unit: str, findings: HourlyFindings) -> list[Event]:
     columns = _family_columns(findings, found_only=True)
     if not columns:
         return events
-    order = np.argsort(findings.hours.asi8, kind="stable")  # hour order
-    hours = (findings.hours.as_unit("ns").asi8[order], findings.hours[order])
+    stamps = findings.hours
+    if not stamps.is_monotonic_increasing:  # follow the hours in order
+        order = np.argsort(stamps.asi8, kind="stable")
+        stamps, columns = stamps[order], {key: status[order] for key, status in columns.items()}
+    hours = (stamps.as_unit("ns").asi8, stamps)
     for key, status in columns.items():
-        events.extend(_episodes(unit, key, status[order], hours, findings, _policy_for(key)))
+        events.extend(_episodes(unit, key, status, hours, findings, _policy_for(key)))
     return sorted(events, key=lambda e: (e.start, e.code, e.detail))
 
 
