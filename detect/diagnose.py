@@ -451,13 +451,15 @@ def diagnose(
     for k, bad in bad_at.items():
         if "all" in bad or bad & set(DRIVER_POINTS):
             checked[k] = False
+    # sound hours (no sensor finding, every feature likely inside its band) need no ranking
     sound = checked & (normal_all >= ABNORMAL_BELOW)
     sound[[k for k, bad in bad_at.items() if bad]] = False
-    drift_checked = {}
-    for feature, point in SINGLE_SENSOR_FEATURES.items():
-        drift_checked[point] = np.zeros(len(hours), dtype=bool)
-        if feature in names:
-            drift_checked[point] = sound & np.isfinite(values[:, names.index(feature)])
+    drift_checked = {
+        point: sound & np.isfinite(values[:, names.index(feature)])
+        if feature in names
+        else np.zeros(len(hours), dtype=bool)
+        for feature, point in SINGLE_SENSOR_FEATURES.items()
+    }
     found: dict = {code: {} for code in REFRIGERANT_FAULTS}
     drift_found: dict = {p: {} for p in SINGLE_SENSOR_FEATURES.values()}
     points_of = [set(FEATURE_POINTS.get(f, ())) for f in names]
