@@ -217,39 +217,38 @@ def check_quality(
         np.ones(len(hours), dtype=bool),
         {hours[k]: Finding(1.0, 1.0, "no readings at all this hour") for k in _where(~any_data)},
     )
+    reported = counts > 0
+    share = np.divide(bad_counts, counts, out=np.zeros(counts.shape), where=reported)
+    silent = _where_by_row(~reported & any_data)
+    out_of_range = _where_by_row(reported & (share >= OUT_OF_RANGE_SHARE))
     for j, role in enumerate(points):
-        silent = (counts[j] == 0) & any_data
         out.set(
             finding_key("sensor_fault", f"{role}:offline"),
             any_data,
-            {hours[k]: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in _where(silent)},
+            {hours[k]: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in silent[j]},
         )
-        # out of range
-        reported = counts[j] > 0
-        share = np.divide(bad_counts[j], counts[j], out=np.zeros(len(hours)), where=reported)
-        found = np.flatnonzero(reported & (share >= OUT_OF_RANGE_SHARE))
         out.set(
             finding_key("sensor_fault", f"{role}:out_of_range"),
-            reported,
+            reported[j],
             {
                 hours[k]: Finding(
-                    float(min(1.0, share[k])),
+                    float(min(1.0, share[j, k])),
                     1.0,
-                    f"{role}: {share[k]:.0%} of the hour's values out of range",
+                    f"{role}: {share[j, k]:.0%} of the hour's values out of range",
                 )
-                for k in found
+                for k in out_of_range[j]
             },
         )
 
     run = running_mask.to_numpy(dtype=bool)
     checked = hourly_count(measured) > 0
     flat = _flat(values, points, columns.get("compressor_status"), run)
-    stuck = hourly_count(flat) > 0
+    stuck = _where_by_row((hourly_count(flat) > 0) & checked)
     for j, role in enumerate(points):
         window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
         found = {
             hours[k]: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
-            for k in _where(stuck[j] & checked[j])
+            for k in stuck[j]
         }
         out.set(finding_key("sensor_fault", f"{role}:stuck"), checked[j], found)
     _check_standstill_drift(out, columns, standstill_mask, unit, hours, slot)
@@ -272,13 +271,14 @@ def _hourly_counter(slot: np.ndarray, n_hours: int):
     rows = rows[np.argsort(slot[rows], kind="stable")]  # grouped by hour
     if len(rows) and rows[-1] - rows[0] == len(rows) - 1:  # sorted and contiguous: a slice
         rows = slice(rows[0], rows[-1] + 1)
-    grouped = slot[rows]
-    starts = np.flatnonzero(np.diff(grouped, prepend=-1))  # first sample of each hour present
+    sizes = np.bincount(slot[rows], minlength=n_hours)
+    present = np.flatnonzero(sizes)
+    starts = (np.cumsum(sizes) - sizes)[present]  # first sample of each hour present
 
     def count(flags: np.ndarray) -> np.ndarray:
         counts = np.zeros((len(flags), n_hours), dtype=int)
         if len(starts):
-            counts[:, grouped[starts]] = np.add.reduceat(flags[:, rows], starts, axis=1, dtype=int)
+            counts[:, present] = np.add.reduceat(flags[:, rows], starts, axis=1, dtype=int)
         return counts
 
     return count
@@ -286,6 +286,15 @@ def _hourly_counter(slot: np.ndarray, n_hours: int):
 
 def _where(mask: np.ndarray) -> list[int]:
     return np.flatnonzero(mask).tolist()
+
+
+def _where_by_row(mask: np.ndarray) -> list[list[int]]:
+    """:func:`_where` of each row of a 2-D mask."""
+    found = [[] for _ in range(len(mask))]
+    rows, columns = np.nonzero(mask)
+    for row, column in zip(rows.tolist(), columns.tolist(), strict=True):
+        found[row].append(column)
+    return found
 
 
 def _held(rows: np.ndarray, window: np.ndarray) -> np.ndarray:
@@ -300,7 +309,7 @@ def _held(rows: np.ndarray, window: np.ndarray) -> np.ndarray:
     np.not_equal(flat[1:], flat[:-1], out=starts[1:])  # NaN != NaN: a gap starts a new run
     starts[::n] = True  # each row starts afresh
     first = np.flatnonzero(starts)
-    length = np.diff(first, append=flat.size)
+    length = np.append(first[1:], flat.size) - first
     long = length >= window.min()
     first, length = first[long], length[long]
     need = window[first // n]
@@ -313,9 +322,10 @@ def _held(rows: np.ndarray, window: np.ndarray) -> np.ndarray:
 
 
 def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
-    total = np.concatenate(([0.0], np.cumsum(flags, dtype=float)))
-    upper = np.arange(1, len(flags) + 1)
-    return total[upper] - total[np.maximum(upper - window, 0)]
+    """Number of true flags among the ``window`` samples ending at each sample."""
+    total = np.cumsum(flags)
+    total[window:] -= total[:-window]
+    return total
 
 
 def _flat(values, points, status, run) -> np.ndarray:
@@ -331,7 +341,8 @@ def _flat(values, points, status, run) -> np.ndarray:
         flat[np.ix_(running_only, run)] = _held(values[running_only][:, run], window[running_only])
     must_move = ~ambient & ~running_only
     if status is not None and must_move.any():
-        switches = np.abs(np.diff(status, prepend=np.nan)) > 0
+        switches = np.zeros(len(status), dtype=bool)
+        switches[1:] = np.abs(status[1:] - status[:-1]) > 0
         moved = (_window_sum(switches, STUCK_MINUTES) > 0) | (
             _window_sum(run, STUCK_MINUTES) >= STUCK_MINUTES // 2
         )
@@ -360,9 +371,9 @@ def _check_standstill_drift(out, columns, standstill_mask, unit, hours, hour_ind
         return
     slot = hour_index[still]
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
-    air, _ = hourly_medians(coldest[still], slot, len(hours))
+    series = np.array([coldest, *(columns[role] for role in pressures)])[:, still]
+    (air, *medians), _ = hourly_medians(series, slot, len(hours))
     judged = (rows >= MIN_STANDSTILL_SAMPLES) & ~np.isnan(air)
-    medians = [hourly_medians(columns[role][still], slot, len(hours))[0] for role in pressures]
     # one lookup for both pressures (the saturation temperature is taken sample by sample)
     dew = fast.saturation_temperature(
         unit.refrigerant, np.concatenate([m[judged] for m in medians]), "dew"
@@ -409,18 +420,23 @@ IMPLAUSIBLE_CHECKS = (
 def hourly_medians(values: np.ndarray, slot: np.ndarray, n_hours: int):
     """(median, count) of the non-NaN ``values`` per hour slot 0 .. n_hours - 1 (slot -1 ignored).
 
-    The median of an even count is the mean of the two middle values, as pandas computes it.
+    ``values`` may hold several series as rows (series x samples, one ``slot`` for all); the
+    results are then series x hours. The median of an even count is the mean of the two middle
+    values, as pandas computes it.
     """
-    keep = (slot >= 0) & ~np.isnan(values)
-    slot, values = slot[keep], values[keep]
-    values = values[np.lexsort((values, slot))]
-    sizes = np.bincount(slot, minlength=n_hours)
+    rows = np.atleast_2d(values)
+    groups = np.arange(len(rows))[:, None] * n_hours + slot  # (series, hour) of each sample
+    keep = (slot >= 0) & ~np.isnan(rows)
+    groups, kept = groups[keep], rows[keep]
+    kept = kept[np.lexsort((kept, groups))]
+    sizes = np.bincount(groups, minlength=len(rows) * n_hours)
     first = np.cumsum(sizes) - sizes
-    medians = np.full(n_hours, np.nan)
+    medians = np.full(sizes.shape, np.nan)
     has = sizes > 0
     low, high = first[has] + (sizes[has] - 1) // 2, first[has] + sizes[has] // 2
-    medians[has] = (values[low] + values[high]) / 2.0
-    return medians, sizes
+    medians[has] = (kept[low] + kept[high]) / 2.0
+    shape = (n_hours,) if np.ndim(values) == 1 else (len(rows), n_hours)
+    return medians.reshape(shape), sizes.reshape(shape)
 
 
 def _check_implausible(out, features, steady_mask, hours) -> None:
@@ -433,13 +449,15 @@ def _check_implausible(out, features, steady_mask, hours) -> None:
     def column(name):
         return columns[name][steady]
 
-    judged_values = {
-        "superheat": column("superheat"),
-        "subcooling": column("subcooling"),
-        "discharge_superheat": column("discharge_temp") - column("t_cond"),
-    }
-    for feature, points, meaning in IMPLAUSIBLE_CHECKS:
-        medians, sizes = hourly_medians(judged_values[feature], slot, len(hours))
+    judged_values = [  # in the order of IMPLAUSIBLE_CHECKS
+        column("superheat"),
+        column("subcooling"),
+        column("discharge_temp") - column("t_cond"),
+    ]
+    all_medians, all_sizes = hourly_medians(np.array(judged_values), slot, len(hours))
+    for (feature, points, meaning), medians, sizes in zip(
+        IMPLAUSIBLE_CHECKS, all_medians, all_sizes, strict=True
+    ):
         judged = sizes >= MIN_IMPLAUSIBLE_SAMPLES
         found = {
             hours[k]: Finding(

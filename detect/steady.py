@@ -154,9 +154,9 @@ def steady(
 
 def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
     """Number of true flags among the ``window`` samples ending at each sample."""
-    total = np.concatenate(([0], np.cumsum(flags)))
-    upper = np.arange(1, len(flags) + 1)
-    return total[upper] - total[np.maximum(upper - window, 0)]
+    total = np.cumsum(flags)
+    total[window:] -= total[:-window]
+    return total
 
 
 def _moving_std(rows: np.ndarray, window: int, min_samples: int) -> np.ndarray:
