@@ -100,21 +100,21 @@ class _Axis:
         np.fmin(i, self.nodes - 3.0, out=i)
         t = q
         t -= i
-        t_t1 = t * (t - 1.0)
-        t1_t2 = (t + 1.0) * (t - 2.0)
-        weights = np.empty((4, t.size))
-        np.multiply(t_t1, t - 2.0, out=weights[0])
-        weights[0] *= -1.0 / 6.0
-        np.multiply(t1_t2, t - 1.0, out=weights[1])
-        weights[1] *= 0.5
-        np.multiply(t1_t2, t, out=weights[2])
-        weights[2] *= -0.5
-        np.multiply(t_t1, t + 1.0, out=weights[3])
-        weights[3] *= 1.0 / 6.0
+        # w_k = c_k prod_{m != k} (t - t_m), nodes t_m = -1, 0, 1, 2; rows of `to_node`: t - 2,
+        # t - 1, t, t + 1; `pairs`: t (t - 1) and (t + 1) (t - 2)
+        to_node = t + _NODE_SHIFTS
+        pairs = to_node[2:] * to_node[1::-1]
+        weights = pairs[_PAIR_OF_WEIGHT] * to_node
+        weights *= _WEIGHT_FACTORS
         return i.astype(np.intp), weights
 
 
-_NODES_1D = np.arange(4)[:, None]
+# Cubic Lagrange weights on the nodes -1, 0, 1, 2 (see _Axis.locate).
+_NODE_SHIFTS = np.array([[-2.0], [-1.0], [0.0], [1.0]])
+_PAIR_OF_WEIGHT = [0, 1, 1, 0]
+_WEIGHT_FACTORS = np.array([[-1.0 / 6.0], [0.5], [-0.5], [1.0 / 6.0]])
+#: Offsets of a stencil's 4 nodes from its second node.
+_NODES_1D = np.arange(-1, 3)[:, None]
 
 
 class _Stencil:
@@ -129,16 +129,16 @@ class _Stencil:
         i, self.wx = rows.locate(x) if isinstance(rows, _Axis) else rows
         if col_axis is None:
             self.wy = None
-            self.index = (i - 1) + _NODES_1D  # (4, n)
+            self.index = i + _NODES_1D  # (4, n)
         else:
             j, self.wy = col_axis.locate(y)
-            base = (i - 1) * col_axis.nodes + (j - 1)
-            self.index = base + _nodes_2d(col_axis.nodes)  # (16, n): node (a, b) at 4 a + b
+            second_node = i * col_axis.nodes + j
+            self.index = second_node + _nodes_2d(col_axis.nodes)  # (16, n): node (a, b) at 4a + b
 
     def apply(self, flat_table: np.ndarray) -> np.ndarray:
         """Interpolate a C-contiguous table, flattened, at the stencil's samples.
 
-        Sums in the order sum_a wx_a (sum_b wy_b f_ab), each sum from its first term.
+        Sums in a fixed order: sum_a wx_a (sum_b wy_b f_ab), the outer sum from zero.
         """
         nodes = flat_table.take(self.index)
         if self.wy is None:
@@ -166,8 +166,9 @@ def _sum_rows(values: np.ndarray) -> np.ndarray:
 
 @lru_cache(maxsize=8)
 def _nodes_2d(stride: int) -> np.ndarray:
-    """Flat offsets (16, 1) of the 4 x 4 nodes of a stencil on a grid of ``stride`` columns."""
-    return (np.arange(4)[:, None] * stride + np.arange(4)).reshape(16, 1)
+    """Flat offsets (16, 1) of the 4 x 4 nodes of a stencil on a grid of ``stride`` columns, from
+    its second node in both directions."""
+    return (np.arange(-1, 3)[:, None] * stride + np.arange(-1, 3)).reshape(16, 1)
 
 
 @dataclass
@@ -365,11 +366,6 @@ def _shaped(values: np.ndarray, shape):
     return float(values[0]) if shape == () else values.reshape(shape)
 
 
-def _where(mask: np.ndarray, values: np.ndarray) -> np.ndarray:
-    """``values[mask]``, without a copy when every sample is selected."""
-    return values if mask.all() else values[mask]
-
-
 _EXACT_SATURATION = {
     "T": exact.saturation_temperature,
     "h": exact.saturated_enthalpy,
@@ -396,9 +392,9 @@ class PressureLookup:
         self._stencil = _Stencil(self._rows)
         self._saturation: dict[str, np.ndarray] = {}
 
-    def _row_location(self, mask: np.ndarray):
-        """The pressures' location on the grid, for the samples in ``mask``."""
-        if mask.all():
+    def _row_location(self, mask: np.ndarray, every: bool):
+        """The pressures' location on the grid, for the samples in ``mask`` (``every``: all)."""
+        if every:
             return self._rows
         index, weights = self._rows
         return index[mask], weights[:, mask]
@@ -419,9 +415,10 @@ class PressureLookup:
             self._saturation[name] = values
         return values
 
-    def _phase_values(self, phase, distance, mask, names) -> dict[str, np.ndarray]:
+    def _phase_values(self, phase, distance, mask, every, names) -> dict[str, np.ndarray]:
         axis = self.tables.superheat_axis if phase == "vapour" else self.tables.subcooling_axis
-        stencil = _Stencil(self._row_location(mask), None, axis, _where(mask, distance))
+        at = distance if every else distance[mask]
+        stencil = _Stencil(self._row_location(mask, every), None, axis, at)
         return {name: stencil.apply(self.tables.flat[f"{phase}_{name}"]) for name in names}
 
     def single_phase(self, temperature, *names: str) -> dict[str, np.ndarray]:
@@ -434,24 +431,31 @@ class PressureLookup:
             root_superheat = np.sqrt(superheat)
             root_subcooling = np.sqrt(subcooling)
         vapour = self.tabulated & self.tables.superheat_axis.contains(root_superheat)
-        liquid = self.tabulated & self.tables.subcooling_axis.contains(root_subcooling) & ~vapour
         columns = ["ln_rho" if name == "rho" else name for name in names]
-        out = {name: np.full(self.p.shape, np.nan) for name in columns}
-        for phase, mask, distance in (
-            ("vapour", vapour, root_superheat),
-            ("liquid", liquid, root_subcooling),
-        ):
-            if mask.all():
-                out.update(self._phase_values(phase, distance, mask, columns))
-            elif mask.any():
-                for name, values in self._phase_values(phase, distance, mask, columns).items():
-                    out[name][mask] = values
+        if vapour.all():  # the usual case: one table serves every sample
+            out = self._phase_values("vapour", root_superheat, vapour, True, columns)
+        else:
+            out = {name: np.full(self.p.shape, np.nan) for name in columns}
+            liquid = self.tabulated & self.tables.subcooling_axis.contains(root_subcooling)
+            liquid &= ~vapour
+            for phase, mask, distance in (
+                ("vapour", vapour, root_superheat),
+                ("liquid", liquid, root_subcooling),
+            ):
+                every = mask.all()
+                if every:
+                    out.update(self._phase_values(phase, distance, mask, True, columns))
+                elif mask.any():
+                    values = self._phase_values(phase, distance, mask, False, columns)
+                    for name in columns:
+                        out[name][mask] = values[name]
         if "ln_rho" in out:
             out["rho"] = np.exp(out.pop("ln_rho"))
-        inside_glide = (superheat < 0) & (subcooling < 0)
+        computable = np.isfinite(self.p) & np.isfinite(t)
+        computable &= ~((superheat < 0) & (subcooling < 0))  # not inside the glide
         for name in names:
             values = out[name]
-            redo = np.isnan(values) & np.isfinite(self.p) & np.isfinite(t) & ~inside_glide
+            redo = np.isnan(values) & computable
             if redo.any():
                 values[redo] = _EXACT_SINGLE_PHASE[name](
                     self.tables.refrigerant, self.p[redo], t[redo]
@@ -464,12 +468,13 @@ class PressureLookup:
         excess = s - self.saturation("s_dew")
         superheated = self.tabulated & self.tables.entropy_axis.contains(excess)
         out = np.full(self.p.shape, np.nan)
-        if superheated.any():
+        every = superheated.all()
+        if every or superheated.any():
             stencil = _Stencil(
-                self._row_location(superheated),
+                self._row_location(superheated, every),
                 None,
                 self.tables.entropy_axis,
-                _where(superheated, excess),
+                excess if every else excess[superheated],
             )
             out[superheated] = stencil.apply(self.tables.flat["isentropic_h"])
         wet = excess < 0
