@@ -104,14 +104,15 @@ class _Axis:
         # t - 1, t, t + 1; `pairs`: t (t - 1) and (t + 1) (t - 2)
         to_node = t + _NODE_SHIFTS
         pairs = to_node[2:] * to_node[1::-1]
-        weights = pairs[_PAIR_OF_WEIGHT] * to_node
+        weights = pairs.take(_PAIR_OF_WEIGHT, axis=0)
+        weights *= to_node
         weights *= _WEIGHT_FACTORS
         return i.astype(np.intp), weights
 
 
 # Cubic Lagrange weights on the nodes -1, 0, 1, 2 (see _Axis.locate).
 _NODE_SHIFTS = np.array([[-2.0], [-1.0], [0.0], [1.0]])
-_PAIR_OF_WEIGHT = [0, 1, 1, 0]
+_PAIR_OF_WEIGHT = np.array([0, 1, 1, 0])
 _WEIGHT_FACTORS = np.array([[-1.0 / 6.0], [0.5], [-0.5], [1.0 / 6.0]])
 #: Offsets of a stencil's 4 nodes from its second node.
 _NODES_1D = np.arange(-1, 3)[:, None]
