@@ -11,7 +11,8 @@ locks the other holds (https://www.sqlite.org/howtocorrupt.html, section 2.2.1).
 module and the ADBC driver each carry their own SQLite, so ADBC reads of a SQLite file run in a
 reader process of their own (:class:`ReaderProcess`); PostgreSQL is read in-process.
 
-Engines no ADBC driver serves (an in-memory SQLite database, other dialects) give ``None`` from
+Engines no ADBC driver serves (an in-memory SQLite database, other dialects), and SQLite read from
+a daemonic pool worker (which may not start the reader process), give ``None`` from
 :func:`open_columnar`; the caller keeps the DB-API path.
 """
 
@@ -128,6 +129,8 @@ def open_columnar(engine: Engine) -> ColumnarConnection | ReaderProcess | None:
     if backend == "sqlite":
         name = url.database
         if not name or name == ":memory:" or name.startswith("file:"):
+            return None
+        if multiprocessing.current_process().daemon:  # a pool worker may not start a process
             return None
         return ReaderProcess(Path(name).resolve())
     if backend == "postgresql":

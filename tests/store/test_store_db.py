@@ -248,3 +248,25 @@ def test_a_failed_read_in_the_reader_process_is_a_clear_error_and_it_serves_on(t
         assert times.tolist() == [T0_MS] and values.tolist() == [1e5]
     finally:
         reader.close()
+
+
+def _read_in_pool_worker(args):
+    url, unit_id, start, end = args
+    with FrameReader(connect(url)) as reader:
+        return reader.columnar, reader.read(unit_id, start, end)
+
+
+def test_a_daemonic_pool_worker_reads_through_the_dbapi_driver(tmp_path):
+    """Pool workers may not start the ADBC reader process: they read through sqlite3."""
+    import multiprocessing
+
+    url = f"sqlite:///{tmp_path / 'w.db'}"
+    engine = connect(url)
+    _, unit_id, (p_suc, _) = _unit_with_points(engine)
+    write_readings(engine, [(p_suc, T0_MS + i * 60_000, 1e5 + i) for i in range(5)])
+    start = pd.Timestamp(T0_MS, unit="ms", tz="UTC")
+    end = start + pd.Timedelta(hours=1)
+    with multiprocessing.get_context("spawn").Pool(1) as pool:
+        columnar, frame = pool.map(_read_in_pool_worker, [(url, unit_id, start, end)])[0]
+    assert not columnar
+    pd.testing.assert_frame_equal(frame, read_unit_frame(engine, unit_id, start, end))
