@@ -136,8 +136,13 @@ def service_ranges(unit: UnitInfo) -> dict[str, tuple[float, float]]:
 def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, pd.DataFrame]:
     """(grid with implausible values set to NaN, boolean frame of the blanked samples)."""
     ranges = service_ranges(unit)
-    low = np.array([ranges.get(role, (-np.inf, np.inf))[0] for role in grid.columns])
-    high = np.array([ranges.get(role, (-np.inf, np.inf))[1] for role in grid.columns])
+    low, high = (
+        np.array(
+            [ranges.get(role, (-np.inf, np.inf)) for role in grid.columns.tolist()], dtype=float
+        )
+        .reshape(-1, 2)
+        .T
+    )
     values = grid.to_numpy(dtype=float, copy=True)
     bad = (values < low) | (values > high)  # NaN compares false: a gap is not out of range
     values[bad] = np.nan
@@ -200,10 +205,10 @@ def check_quality(
         implausible-combination checks); optional.
     """
     out = HourlyFindings.empty(hours)
-    columns = _columns(grid)
-    points = [c for c in grid.columns if c in SERVICE_RANGES and c != "compressor_status"]
+    columns, blanked_columns = _columns(grid), _columns(blanked, dtype=bool)
+    points = [c for c in columns if c in SERVICE_RANGES and c != "compressor_status"]
     values = np.array([columns[role] for role in points]).reshape(len(points), len(grid))
-    bad = blanked.to_numpy(dtype=bool).T[[blanked.columns.get_loc(role) for role in points]]
+    bad = np.array([blanked_columns[role] for role in points], dtype=bool).reshape(values.shape)
     slot = hour_slots(grid.index, hours)
     hourly_count = _hourly_counter(slot, len(hours))  # points x hours
     measured = ~np.isnan(values)
@@ -212,26 +217,26 @@ def check_quality(
     any_data = counts.sum(axis=0) > 0
 
     # offline: the whole unit, then single points while others report
-    out.set(
+    out.set_positions(
         finding_key("sensor_fault", "all:offline"),
         np.ones(len(hours), dtype=bool),
-        {hours[k]: Finding(1.0, 1.0, "no readings at all this hour") for k in _where(~any_data)},
+        {k: Finding(1.0, 1.0, "no readings at all this hour") for k in _where(~any_data)},
     )
     reported = counts > 0
     share = np.divide(bad_counts, counts, out=np.zeros(counts.shape), where=reported)
     silent = _where_by_row(~reported & any_data)
     out_of_range = _where_by_row(reported & (share >= OUT_OF_RANGE_SHARE))
     for j, role in enumerate(points):
-        out.set(
+        out.set_positions(
             finding_key("sensor_fault", f"{role}:offline"),
             any_data,
-            {hours[k]: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in silent[j]},
+            {k: Finding(1.0, 1.0, f"{role}: no readings this hour") for k in silent[j]},
         )
-        out.set(
+        out.set_positions(
             finding_key("sensor_fault", f"{role}:out_of_range"),
             reported[j],
             {
-                hours[k]: Finding(
+                k: Finding(
                     float(min(1.0, share[j, k])),
                     1.0,
                     f"{role}: {share[j, k]:.0%} of the hour's values out of range",
@@ -247,22 +252,18 @@ def check_quality(
     for j, role in enumerate(points):
         window = STUCK_AMBIENT_MINUTES if role in AMBIENT_POINTS else STUCK_MINUTES
         found = {
-            hours[k]: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes")
-            for k in stuck[j]
+            k: Finding(1.0, 0.9, f"{role}: the same value for {window} minutes") for k in stuck[j]
         }
-        out.set(finding_key("sensor_fault", f"{role}:stuck"), checked[j], found)
+        out.set_positions(finding_key("sensor_fault", f"{role}:stuck"), checked[j], found)
     _check_standstill_drift(out, columns, standstill_mask, unit, hours, slot)
     if features is not None and steady_mask is not None:
         _check_implausible(out, features, steady_mask, hours)
     return out
 
 
-def _columns(frame: pd.DataFrame, names=None) -> dict[str, np.ndarray]:
-    """Columns ``names`` (default all) of a numeric frame as float arrays (one conversion)."""
-    rows = frame.to_numpy(dtype=float).T
-    if names is None:
-        return dict(zip(frame.columns, rows, strict=True))
-    return {name: rows[frame.columns.get_loc(name)] for name in names}
+def _columns(frame: pd.DataFrame, dtype=float) -> dict[str, np.ndarray]:
+    """Every column of a frame as an array of ``dtype`` (one conversion of the whole frame)."""
+    return dict(zip(frame.columns.tolist(), frame.to_numpy(dtype=dtype).T, strict=True))
 
 
 def _hourly_counter(slot: np.ndarray, n_hours: int):
@@ -367,7 +368,8 @@ def _check_standstill_drift(out, columns, standstill_mask, unit, hours, hour_ind
     still = standstill_mask.to_numpy(dtype=bool)
     if not still.any():
         for role in pressures:
-            out.set(finding_key("sensor_fault", f"{role}:drift"), np.zeros(len(hours), bool), {})
+            unchecked = np.zeros(len(hours), dtype=bool)
+            out.set_positions(finding_key("sensor_fault", f"{role}:drift"), unchecked, {})
         return
     slot = hour_index[still]
     rows = np.bincount(slot[slot >= 0], minlength=len(hours))
@@ -400,13 +402,13 @@ def _check_standstill_drift(out, columns, standstill_mask, unit, hours, hour_ind
                 confidence = 0.9
             else:
                 confidence = 0.6
-            found[hours[k]] = Finding(
+            found[k] = Finding(
                 float(min(1.0, abs(deviation) / 10.0)),
                 confidence,
                 f"{role} at standstill: saturation {deviation:+.1f} K from the coldest air "
                 "temperature (should be equalised)",
             )
-        out.set(finding_key("sensor_fault", f"{role}:drift"), checked, found)
+        out.set_positions(finding_key("sensor_fault", f"{role}:drift"), checked, found)
 
 
 IMPLAUSIBLE_CHECKS = (
@@ -444,7 +446,7 @@ def _check_implausible(out, features, steady_mask, hours) -> None:
         steady_mask = steady_mask.reindex(features.index, fill_value=False)
     steady = steady_mask.to_numpy(dtype=bool)
     slot = hour_slots(features.index, hours)[steady]
-    columns = _columns(features, ("superheat", "subcooling", "discharge_temp", "t_cond"))
+    columns = _columns(features)
 
     def column(name):
         return columns[name][steady]
@@ -460,14 +462,14 @@ def _check_implausible(out, features, steady_mask, hours) -> None:
     ):
         judged = sizes >= MIN_IMPLAUSIBLE_SAMPLES
         found = {
-            hours[k]: Finding(
+            k: Finding(
                 float(min(1.0, -medians[k] / 10.0)),
                 0.8,
                 f"{meaning}: median {feature} {medians[k]:+.1f} K in steady running",
             )
             for k in _where(judged & (medians < -IMPLAUSIBLE_K))
         }
-        out.set(finding_key("sensor_fault", f"{points}:implausible"), judged, found)
+        out.set_positions(finding_key("sensor_fault", f"{points}:implausible"), judged, found)
 
 
 def faulty_points(findings: HourlyFindings) -> dict[pd.Timestamp, set[str]]:

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from pandas._libs.window.aggregations import roll_var
 
 from rimewatch.physics import standstill
 
@@ -62,18 +63,17 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
     index = frame.index
     stamps = index.asi8
     minute = 60 * _TICKS_PER_SECOND[index.unit]
-    if index.is_unique and not (stamps % minute).any():
-        # readings already on whole minutes (one per bin): the bin means are the readings
-        first = stamps.min()
-        slots = (stamps - first) // minute
+    if (stamps[1:] > stamps[:-1]).all() and not (stamps % minute).any():
+        # sorted readings already on whole minutes (one per bin): the bin means are the readings
+        slots = (stamps - stamps[0]) // minute
         bins = pd.date_range(
-            pd.Timestamp(first, unit=index.unit, tz=index.tz),
-            periods=int(slots[-1] if index.is_monotonic_increasing else slots.max()) + 1,
+            pd.Timestamp(stamps[0], unit=index.unit, tz=index.tz),
+            periods=int(slots[-1]) + 1,
             freq=GRID,
             name=index.name,
             unit=index.unit,
         )
-        if len(bins) == len(index) and index.is_monotonic_increasing:  # no bin missing
+        if len(bins) == len(index):  # no bin missing
             values = frame.to_numpy(dtype=float, copy=True)
         else:
             values = np.full((len(bins), frame.shape[1]), np.nan)
@@ -161,29 +161,14 @@ def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
 
 def _moving_std(rows: np.ndarray, window: int, min_samples: int) -> np.ndarray:
     """Sample standard deviation (ddof 1) of each row over the ``window`` samples ending at each
-    sample, NaN ignored; NaN where fewer than ``min_samples`` (or 2) samples are present.
+    sample, NaN ignored (as are infinities); NaN where fewer than ``min_samples`` are present.
 
-    The deviations are taken from the window's latest present value: both moments then stay
-    small, so the variance keeps full precision (a constant window gives exactly 0).
+    The computation of ``DataFrame.rolling(window, min_periods=min_samples).std()``: pandas'
+    own running-variance routine on the same window bounds, called once per row without the
+    frame machinery, so that even exact ties with a limit are decided as pandas decides them.
     """
-    n = rows.shape[1]
-    present = ~np.isnan(rows)
-    latest = np.maximum.accumulate(np.where(present, np.arange(n), 0), axis=1)
-    reference = np.take_along_axis(rows, latest, axis=1)
-    lead = window - 1  # samples before the first one count as absent
-    values = np.zeros((len(rows), n + lead))
-    np.copyto(values[:, lead:], rows, where=present)
-    weights = np.zeros((len(rows), n + lead))
-    weights[:, lead:] = present
-    count, first, second = (np.zeros(rows.shape) for _ in range(3))
-    for back in range(window):
-        deviation = values[:, back : back + n] - reference
-        deviation *= weights[:, back : back + n]
-        count += weights[:, back : back + n]
-        first += deviation
-        deviation *= deviation
-        second += deviation
-    with np.errstate(invalid="ignore", divide="ignore"):
-        variance = (second - first * first / count) / (count - 1)
-    variance[count < max(min_samples, 2)] = np.nan
-    return np.sqrt(np.maximum(variance, 0.0))
+    end = np.arange(1, rows.shape[1] + 1, dtype=np.int64)
+    start = np.maximum(end - window, 0)
+    finite = np.where(np.isinf(rows), np.nan, rows)
+    variance = np.array([roll_var(row, start, end, min_samples) for row in finite])
+    return np.sqrt(np.maximum(variance.reshape(rows.shape), 0.0))
