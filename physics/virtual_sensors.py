@@ -99,10 +99,9 @@ def map_mass_flow(
     p, actual, rated = np.broadcast_arrays(
         *(np.asarray(x, float) for x in (suction_pressure, suction_temp, rated_temp))
     )
-    # both densities in one lookup: the suction pressures twice, actual then rated temperatures
-    twice = fast.PressureLookup(compressor_map.refrigerant, np.concatenate([p.ravel()] * 2))
-    both = twice.single_phase(np.concatenate([actual.ravel(), rated.ravel()]), "rho")["rho"]
-    rho, rho_rated = (half.reshape(p.shape) for half in np.split(both, 2))
+    at_suction = fast.PressureLookup(compressor_map.refrigerant, p)  # located once for both
+    rho = at_suction.single_phase(actual.reshape(-1), "rho")["rho"].reshape(p.shape)
+    rho_rated = at_suction.single_phase(rated.reshape(-1), "rho")["rho"].reshape(p.shape)
     return _out(
         density_corrected_mass_flow(m_map, rho, rho_rated, compressor_map.density_correction_factor)
     )
