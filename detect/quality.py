@@ -143,12 +143,12 @@ def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame
         .reshape(-1, 2)
         .T
     )
-    values = grid.to_numpy(dtype=float, copy=True)
-    bad = (values < low) | (values > high)  # NaN compares false: a gap is not out of range
-    values[bad] = np.nan
+    rows = grid.to_numpy(dtype=float).T.copy()  # one row per column, as align lays them out
+    bad = (rows < low[:, None]) | (rows > high[:, None])  # NaN compares false: gaps stay
+    rows[bad] = np.nan
     return (
-        pd.DataFrame(values, index=grid.index, columns=grid.columns, copy=False),
-        pd.DataFrame(bad, index=grid.index, columns=grid.columns, copy=False),
+        pd.DataFrame(rows.T, index=grid.index, columns=grid.columns, copy=False),
+        pd.DataFrame(bad.T, index=grid.index, columns=grid.columns, copy=False),
     )
 
 

@@ -73,32 +73,33 @@ def align(frame: pd.DataFrame, hold_minutes: int = HOLD_MINUTES) -> pd.DataFrame
             name=index.name,
             unit=index.unit,
         )
+        # one row per column: each column's values stay contiguous for every later step
         if len(bins) == len(index):  # no bin missing
-            values = frame.to_numpy(dtype=float, copy=True)
+            rows = frame.to_numpy(dtype=float).T.copy()
         else:
-            values = np.full((len(bins), frame.shape[1]), np.nan)
-            values[slots] = frame.to_numpy(dtype=float)
+            rows = np.full((frame.shape[1], len(bins)), np.nan)
+            rows[:, slots] = frame.to_numpy(dtype=float).T
     else:
         grid = frame.sort_index().astype(float).resample(GRID).mean()
-        bins, values = grid.index, grid.to_numpy(copy=True)
+        bins, rows = grid.index, grid.to_numpy().T.copy()
     if hold_minutes > 0:
-        _hold(values, hold_minutes)
+        _hold(rows, hold_minutes)
     if "compressor_status" in frame.columns:
         status = frame.columns.get_loc("compressor_status")
-        values[:, status] = np.round(values[:, status])
-    return pd.DataFrame(values, index=bins, columns=frame.columns, copy=False)
+        rows[status] = np.round(rows[status])
+    return pd.DataFrame(rows.T, index=bins, columns=frame.columns, copy=False)
 
 
 #: ticks of a DatetimeIndex unit per second
 _TICKS_PER_SECOND = {"s": 1, "ms": 1_000, "us": 1_000_000, "ns": 1_000_000_000}
 
 
-def _hold(values: np.ndarray, limit: int) -> None:
-    """Fill each column's gaps in place with the last value at most ``limit`` samples before (NaN
+def _hold(rows: np.ndarray, limit: int) -> None:
+    """Fill each row's gaps in place with the last value at most ``limit`` samples before (NaN
     beyond), as pandas' ``ffill(limit=limit)`` does."""
-    measured = values.copy()
+    measured = rows.copy()
     for back in range(1, limit + 1):
-        np.copyto(values[back:], measured[:-back], where=np.isnan(values[back:]))
+        np.copyto(rows[:, back:], measured[:, :-back], where=np.isnan(rows[:, back:]))
 
 
 def running(grid: pd.DataFrame, startup_exclusion_s: float = STARTUP_EXCLUSION_S) -> pd.Series:
