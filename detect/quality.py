@@ -37,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
+from rimewatch.detect.steady import window_count
 from rimewatch.detect.unit import UnitInfo
 from rimewatch.physics import fast
 from rimewatch.physics.refrigerant import get_refrigerant
@@ -136,13 +137,8 @@ def service_ranges(unit: UnitInfo) -> dict[str, tuple[float, float]]:
 def blank_out_of_range(grid: pd.DataFrame, unit: UnitInfo) -> tuple[pd.DataFrame, pd.DataFrame]:
     """(grid with implausible values set to NaN, boolean frame of the blanked samples)."""
     ranges = service_ranges(unit)
-    low, high = (
-        np.array(
-            [ranges.get(role, (-np.inf, np.inf)) for role in grid.columns.tolist()], dtype=float
-        )
-        .reshape(-1, 2)
-        .T
-    )
+    bounds = [ranges.get(role, (-np.inf, np.inf)) for role in grid.columns.tolist()]
+    low, high = np.array(bounds, dtype=float).reshape(-1, 2).T
     rows = grid.to_numpy(dtype=float).T.copy()  # one row per column, as align lays them out
     bad = (rows < low[:, None]) | (rows > high[:, None])  # NaN compares false: gaps stay
     rows[bad] = np.nan
@@ -322,13 +318,6 @@ def _held(rows: np.ndarray, window: np.ndarray) -> np.ndarray:
     return np.cumsum(held[:-1]).reshape(rows.shape) > 0
 
 
-def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
-    """Number of true flags among the ``window`` samples ending at each sample."""
-    total = np.cumsum(flags)
-    total[window:] -= total[:-window]
-    return total
-
-
 def _flat(values, points, status, run) -> np.ndarray:
     """(points x samples) true where a point has held exactly the same value for its stuck
     window while it had to move (see the module docstring)."""
@@ -344,8 +333,8 @@ def _flat(values, points, status, run) -> np.ndarray:
     if status is not None and must_move.any():
         switches = np.zeros(len(status), dtype=bool)
         switches[1:] = np.abs(status[1:] - status[:-1]) > 0
-        moved = (_window_sum(switches, STUCK_MINUTES) > 0) | (
-            _window_sum(run, STUCK_MINUTES) >= STUCK_MINUTES // 2
+        moved = (window_count(switches, STUCK_MINUTES) > 0) | (
+            window_count(run, STUCK_MINUTES) >= STUCK_MINUTES // 2
         )
         flat[must_move] &= moved
     return flat

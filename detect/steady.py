@@ -141,7 +141,7 @@ def steady(
     """
     limits = STEADY_LIMITS_K if limits is None else limits
     run = running_mask.to_numpy(dtype=bool)
-    ok = run & (_window_sum(run, window_minutes) >= min_samples)
+    ok = run & (window_count(run, window_minutes) >= min_samples)
     names = [name for name in limits if name in signals]
     if names:
         columns = signals.to_numpy(dtype=float).T
@@ -153,8 +153,8 @@ def steady(
     return pd.Series(ok, index=signals.index, name="steady")
 
 
-def _window_sum(flags: np.ndarray, window: int) -> np.ndarray:
-    """Number of true flags among the ``window`` samples ending at each sample."""
+def window_count(flags: np.ndarray, window: int) -> np.ndarray:
+    """Number of true ``flags`` among the ``window`` (>= 1) samples ending at each sample."""
     total = np.cumsum(flags)
     total[window:] -= total[:-window]
     return total
