@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from pandas._libs.window.aggregations import roll_var
 
 from rimewatch.physics import standstill
 
@@ -164,12 +163,7 @@ def _moving_std(rows: np.ndarray, window: int, min_samples: int) -> np.ndarray:
     """Sample standard deviation (ddof 1) of each row over the ``window`` samples ending at each
     sample, NaN ignored (as are infinities); NaN where fewer than ``min_samples`` are present.
 
-    The computation of ``DataFrame.rolling(window, min_periods=min_samples).std()``: pandas'
-    own running-variance routine on the same window bounds, called once per row without the
-    frame machinery, so that even exact ties with a limit are decided as pandas decides them.
+    pandas' rolling std (public API), so that exact ties with a limit are decided as before.
     """
-    end = np.arange(1, rows.shape[1] + 1, dtype=np.int64)
-    start = np.maximum(end - window, 0)
-    finite = np.where(np.isinf(rows), np.nan, rows)
-    variance = np.array([roll_var(row, start, end, min_samples) for row in finite])
-    return np.sqrt(np.maximum(variance.reshape(rows.shape), 0.0))
+    frame = pd.DataFrame(np.where(np.isinf(rows), np.nan, rows).T)
+    return frame.rolling(window, min_periods=min_samples).std().to_numpy().T
