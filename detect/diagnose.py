@@ -55,7 +55,7 @@ import pandas as pd
 from scipy.special import ndtr
 
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
-from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS
+from rimewatch.detect.quality import DRIVER_POINTS, FEATURE_POINTS, hourly_medians
 
 REFRIGERANT_FAULTS = (
     "low_charge",
@@ -205,32 +205,6 @@ class HourlyResiduals:
     extrapolated: np.ndarray  # share of the hour's samples judged outside the training envelope
 
 
-def hourly_column_medians(values: np.ndarray, slot: np.ndarray, n_hours: int) -> np.ndarray:
-    """Median of the non-NaN values of each series per hour slot 0 .. n_hours - 1 (series x
-    hours; slot -1 ignored; NaN where an hour has no value).
-
-    ``values`` holds series x samples, one ``slot`` per sample. The medians of
-    :func:`rimewatch.detect.quality.hourly_medians` (the mean of the two middle values for an
-    even count), from one sort of a series x hours x samples block instead of a lexsort.
-    """
-    keep = slot >= 0
-    slot, values = slot[keep], values[:, keep]
-    if np.any(slot[1:] < slot[:-1]):
-        order = np.argsort(slot, kind="stable")
-        slot, values = slot[order], values[:, order]
-    if len(slot) == 0:
-        return np.full((len(values), n_hours), np.nan)
-    sizes = np.bincount(slot, minlength=n_hours)
-    within = np.arange(len(slot)) - (np.cumsum(sizes) - sizes)[slot]
-    block = np.full((len(values), n_hours, sizes.max()), np.nan)
-    block[:, slot, within] = values
-    block.sort(axis=2)  # NaN last
-    count = np.count_nonzero(~np.isnan(block), axis=2)
-    low = np.take_along_axis(block, np.maximum(count - 1, 0)[..., None] // 2, axis=2)[..., 0]
-    high = np.take_along_axis(block, count[..., None] // 2, axis=2)[..., 0]
-    return np.where(count > 0, (low + high) / 2.0, np.nan)
-
-
 def hourly_residuals(
     residuals: dict[str, np.ndarray],
     slot: np.ndarray,
@@ -258,7 +232,7 @@ def hourly_residuals(
     columns = np.array([residuals[name] for name in names], dtype=float).reshape(
         len(names), len(slot)
     )
-    medians = hourly_column_medians(columns, slot, len(hours)).T
+    medians = hourly_medians(columns, slot, len(hours))[0].T
     medians[rows < MIN_STEADY_PER_HOUR] = np.nan
     share = np.zeros(len(hours))
     if extrapolated is not None:

@@ -170,7 +170,7 @@ def _impact_inputs(prepared, columns, slot, residuals, baseline) -> diagnose.Imp
             power - residuals["compressor_power"],
         ]
     )
-    medians = diagnose.hourly_column_medians(per_sample, slot, len(prepared.hours))
+    medians, _ = quality.hourly_medians(per_sample, slot, len(prepared.hours))
     days = max(len(prepared.hours) / 24.0, 1.0 / 24.0)
     running_hours = float(prepared.running.sum()) / 60.0 / days
     return diagnose.ImpactInputs(*medians, running_hours)

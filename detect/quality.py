@@ -413,21 +413,26 @@ def hourly_medians(values: np.ndarray, slot: np.ndarray, n_hours: int):
 
     ``values`` may hold several series as rows (series x samples, one ``slot`` for all); the
     results are then series x hours. The median of an even count is the mean of the two middle
-    values, as pandas computes it.
+    values, as pandas computes it; NaN where an hour has no value. One sort of a series x hours x
+    samples block (samples of an hour side by side).
     """
     rows = np.atleast_2d(values)
-    groups = np.arange(len(rows))[:, None] * n_hours + slot  # (series, hour) of each sample
-    keep = (slot >= 0) & ~np.isnan(rows)
-    groups, kept = groups[keep], rows[keep]
-    kept = kept[np.lexsort((kept, groups))]
-    sizes = np.bincount(groups, minlength=len(rows) * n_hours)
-    first = np.cumsum(sizes) - sizes
-    medians = np.full(sizes.shape, np.nan)
-    has = sizes > 0
-    low, high = first[has] + (sizes[has] - 1) // 2, first[has] + sizes[has] // 2
-    medians[has] = (kept[low] + kept[high]) / 2.0
-    shape = (n_hours,) if np.ndim(values) == 1 else (len(rows), n_hours)
-    return medians.reshape(shape), sizes.reshape(shape)
+    keep = slot >= 0
+    slot, rows = slot[keep], rows[:, keep]
+    if np.any(slot[1:] < slot[:-1]):
+        order = np.argsort(slot, kind="stable")
+        slot, rows = slot[order], rows[:, order]
+    sizes = np.bincount(slot, minlength=n_hours)
+    block = np.full((len(rows), n_hours, max(int(sizes.max(initial=0)), 1)), np.nan)
+    block[:, slot, np.arange(len(slot)) - (np.cumsum(sizes) - sizes)[slot]] = rows
+    block.sort(axis=2)  # NaN last
+    count = np.count_nonzero(~np.isnan(block), axis=2)
+    low = np.take_along_axis(block, (np.maximum(count - 1, 0) // 2)[..., None], axis=2)[..., 0]
+    high = np.take_along_axis(block, (count // 2)[..., None], axis=2)[..., 0]
+    medians = np.where(count > 0, (low + high) / 2.0, np.nan)
+    if np.ndim(values) == 1:
+        return medians[0], count[0]
+    return medians, count
 
 
 def _check_implausible(out, features, steady_mask, hours) -> None:

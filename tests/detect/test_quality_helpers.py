@@ -21,6 +21,17 @@ def test_hourly_medians_match_pandas_groupby_median():
         groups = pd.Series(values[inside]).groupby(slot[inside])
         np.testing.assert_array_equal(medians, groups.median().reindex(range(12)).to_numpy())
         np.testing.assert_array_equal(sizes, groups.size().reindex(range(12), fill_value=0))
+    # several series at once, slots in any order: each row as pandas has it
+    slot = rng.integers(-1, 12, 300)
+    rows = rng.normal(0.0, 5.0, (3, 300))
+    rows[rng.random((3, 300)) < 0.2] = np.nan
+    medians, sizes = hourly_medians(rows, slot, 12)
+    assert medians.shape == sizes.shape == (3, 12)
+    for row, row_medians, row_sizes in zip(rows, medians, sizes, strict=True):
+        inside = (slot >= 0) & ~np.isnan(row)
+        groups = pd.Series(row[inside]).groupby(slot[inside])
+        np.testing.assert_array_equal(row_medians, groups.median().reindex(range(12)).to_numpy())
+        np.testing.assert_array_equal(row_sizes, groups.size().reindex(range(12), fill_value=0))
     # even count: mean of the two middle values; NaN ignored; an empty hour has no median
     medians, sizes = hourly_medians(np.array([4.0, 1.0, np.nan, 3.0, 2.0]), np.zeros(5, int), 2)
     assert medians[0] == 2.5 and sizes.tolist() == [4, 0] and np.isnan(medians[1])
