@@ -33,18 +33,24 @@ References
 
 from __future__ import annotations
 
-import os
-import tempfile
 import threading
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 
-import CoolProp.CoolProp as CP
 import numpy as np
 
 from rimewatch.physics import refrigerant as exact
-from rimewatch.physics.refrigerant import COOLPROP_VERSION, Phase, Refrigerant, get_refrigerant
+from rimewatch.physics.refrigerant import (
+    COOLPROP_VERSION,
+    Phase,
+    Refrigerant,
+    cache_directory,
+    coolprop,
+    get_refrigerant,
+    load_arrays,
+    save_arrays,
+)
 
 TABLE_LAYOUT = 4  # bump when the grids below change, so cached tables are rebuilt
 
@@ -61,12 +67,6 @@ ENTROPY_NODES = 101
 
 SATURATION_NAMES = ("T_dew", "T_bubble", "h_dew", "h_bubble", "s_dew", "s_bubble")
 PHASE_NAMES = ("h", "s", "ln_rho")
-
-
-def cache_directory() -> Path:
-    """Folder of cached tables: ``tables/`` in ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``"""
-    base = os.environ.get("RIMEWATCH_CACHE_DIR") or Path.home() / ".cache" / "rimewatch"
-    return Path(base) / "tables"
 
 
 @dataclass(frozen=True)
@@ -232,7 +232,7 @@ class PropertyTables:
 
 def _pressure_range(fluid: Refrigerant) -> tuple[float, float]:
     """Lowest and highest tabulated saturation pressure [Pa] (dew line)."""
-    state = CP.AbstractState("HEOS", fluid.coolprop_name)
+    state = coolprop().AbstractState("HEOS", fluid.coolprop_name)
     t_low = max(LOWEST_TEMPERATURE, state.Ttriple() + 1.0)
     t_high = min(HIGHEST_SATURATION, state.T_critical() - 3.0)
     p_low = exact.saturation_pressure(fluid, t_low, "bubble")
@@ -243,6 +243,7 @@ def _pressure_range(fluid: Refrigerant) -> tuple[float, float]:
 def build_tables(name: str | Refrigerant) -> PropertyTables:
     """Compute a refrigerant's tables from CoolProp's full equation of state (a few seconds)."""
     fluid = get_refrigerant(name)
+    CP = coolprop()
     p_low, p_high = _pressure_range(fluid)
     u_low, u_high = np.log(p_low), np.log(p_high)
 
@@ -337,25 +338,17 @@ def tables_for(name: str | Refrigerant) -> PropertyTables:
             return _tables[fluid.designation]
         path = _cache_file(fluid)
         tables = None
-        if path.exists():
+        arrays = load_arrays(path)
+        if arrays is not None:
             try:
-                with np.load(path) as arrays:
-                    tables = PropertyTables.from_arrays(fluid, {k: arrays[k] for k in arrays.files})
-            except (OSError, ValueError, KeyError):
-                tables = None  # unreadable or stale cache file: rebuild below
+                tables = PropertyTables.from_arrays(fluid, arrays)
+            except (ValueError, KeyError):
+                tables = None  # stale cache file: rebuild below
         if tables is None:
             tables = build_tables(fluid)
-            _save(tables, path)
+            save_arrays(path, tables.arrays())
         _tables[fluid.designation] = tables
         return tables
-
-
-def _save(tables: PropertyTables, path: Path) -> None:
-    """Write atomically, so a concurrent reader never sees half a file."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with tempfile.NamedTemporaryFile(dir=path.parent, suffix=".npz", delete=False) as handle:
-        np.savez(handle, **tables.arrays())
-    os.replace(handle.name, path)
 
 
 def _inputs(*values) -> tuple[tuple[int, ...], list[np.ndarray]]:

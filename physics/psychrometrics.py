@@ -8,7 +8,8 @@ steam, water, and ice"), never with hand-written psychrometric formulas.
 from __future__ import annotations
 
 import numpy as np
-from CoolProp.HumidAirProp import HAPropsSI
+
+from rimewatch.physics.refrigerant import humid_air_function
 
 STANDARD_PRESSURE = 101325.0  # Pa
 #: validity ranges passed to HAPropsSI (dry bulb [K], relative humidity [-])
@@ -47,6 +48,7 @@ def wet_bulb_temperature(temp_air, relative_humidity, pressure=STANDARD_PRESSURE
         & (rh <= HUMIDITY_RANGE[1])
     )
     if valid.any():
+        HAPropsSI = humid_air_function()
         try:
             out[valid] = HAPropsSI("B", "T", t[valid], "R", rh[valid], "P", float(pressure))
         except ValueError:  # one sample CoolProp cannot solve: go sample by sample

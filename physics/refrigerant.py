@@ -8,7 +8,13 @@ an exception, so one bad sample cannot stop a batch.
 
 Enthalpy and entropy use the IIR reference state (h = 200 kJ/kg, s = 1 kJ/(kg K) for saturated
 liquid at 0 degC) for every supported refrigerant, ammonia included; CoolProp's default for ammonia
-differs, so this module sets it once on import.
+differs, so :func:`coolprop` sets it before CoolProp's first use.
+
+CoolProp takes about 2 s to import, so it is imported on first use (:func:`coolprop`,
+:func:`humid_air_function`). The critical and triple points, which analyses read on every run,
+are cached on disk (``constants-coolprop<version>.npz`` in :func:`cache_directory`, beside the
+property tables of :mod:`rimewatch.physics.fast` and :mod:`rimewatch.physics.virtual_sensors`), so
+a process whose tables are all cached never imports CoolProp.
 
 References
 ----------
@@ -19,12 +25,15 @@ References
 
 from __future__ import annotations
 
+import importlib.metadata
+import os
+import tempfile
 import threading
+import zipfile
 from functools import cache
+from pathlib import Path
 from typing import Literal
 
-import CoolProp
-import CoolProp.CoolProp as CP
 import numpy as np
 
 from rimewatch.physics.catalogue import (
@@ -56,23 +65,77 @@ __all__ = [
 Phase = Literal["dew", "bubble"]
 
 
-CP.set_reference_state("Ammonia", "IIR")
-COOLPROP_VERSION: str = CoolProp.__version__
+COOLPROP_VERSION: str = importlib.metadata.version("CoolProp")  # = CoolProp.__version__
+
+_import_lock = threading.Lock()
+
+
+@cache
+def _imported_coolprop():
+    import CoolProp.CoolProp as CP
+
+    CP.set_reference_state("Ammonia", "IIR")
+    return CP
+
+
+def coolprop():
+    """The module ``CoolProp.CoolProp``, imported on first use, with ammonia on the IIR reference
+    state."""
+    with _import_lock:  # set up once, before any thread uses it
+        return _imported_coolprop()
+
+
+@cache
+def humid_air_function():
+    """CoolProp's humid-air function ``HAPropsSI``, imported on first use."""
+    coolprop()  # whichever part of CoolProp comes first, ammonia is set up as above
+    from CoolProp.HumidAirProp import HAPropsSI
+
+    return HAPropsSI
+
+
+def cache_directory() -> Path:
+    """Folder of cached tables: ``tables/`` in ``$RIMEWATCH_CACHE_DIR`` or ``~/.cache/rimewatch``"""
+    base = os.environ.get("RIMEWATCH_CACHE_DIR") or Path.home() / ".cache" / "rimewatch"
+    return Path(base) / "tables"
+
+
+def load_arrays(path: Path) -> dict[str, np.ndarray] | None:
+    """The arrays of a cached ``.npz`` file; None when it is missing, damaged or unreadable."""
+    try:
+        with np.load(path) as arrays:
+            return {name: arrays[name] for name in arrays.files}
+    except (OSError, ValueError, EOFError, zipfile.BadZipFile):
+        return None
+
+
+def save_arrays(path: Path, arrays: dict[str, np.ndarray]) -> None:
+    """Write a cache file atomically, so a concurrent reader never sees half a file."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    with tempfile.NamedTemporaryFile(dir=path.parent, suffix=".npz", delete=False) as handle:
+        np.savez(handle, **arrays)
+    os.replace(handle.name, path)
+
 
 _local = threading.local()
 
 
-def _state(refrigerant: Refrigerant) -> CP.AbstractState:
+def _state(refrigerant: Refrigerant):
     """This thread's full-equation-of-state AbstractState for the refrigerant (reused)."""
     cache = _local.__dict__.setdefault("states", {})
     state = cache.get(refrigerant.designation)
     if state is None:
-        state = CP.AbstractState("HEOS", refrigerant.coolprop_name)
+        state = coolprop().AbstractState("HEOS", refrigerant.coolprop_name)
         cache[refrigerant.designation] = state
     return state
 
 
-_PHASES = {"gas": CP.iphase_gas, "liquid": CP.iphase_liquid, None: None}
+def _imposed_phase(phase):
+    """CoolProp's phase constant for ``"gas"`` or ``"liquid"``; None for no imposed phase."""
+    if phase is None:
+        return None
+    CP = coolprop()
+    return {"gas": CP.iphase_gas, "liquid": CP.iphase_liquid}[phase]
 
 
 def _evaluate(refrigerant, pair, first, second, outputs, phase=None):
@@ -84,7 +147,7 @@ def _evaluate(refrigerant, pair, first, second, outputs, phase=None):
     state = _state(fluid)
     a, b = np.broadcast_arrays(np.asarray(first, dtype=float), np.asarray(second, dtype=float))
     result = np.full((len(outputs), *a.shape), np.nan)
-    imposed = _PHASES[phase]
+    imposed = _imposed_phase(phase)
     if imposed is not None:
         state.specify_phase(imposed)
     try:
@@ -114,16 +177,38 @@ def _quality(phase: Phase) -> float:
     return 1.0 if phase == "dew" else 0.0
 
 
-def critical_point(refrigerant: str | Refrigerant) -> tuple[float, float]:
-    """Critical temperature [K] and pressure [Pa] of the refrigerant's equation of state."""
-    state = _state(get_refrigerant(refrigerant))
-    return state.T_critical(), state.p_critical()
+def _computed_constants(fluid: Refrigerant) -> tuple[float, float, float, float]:
+    """Critical and triple point (T [K], p [Pa], T [K], p [Pa]) from CoolProp."""
+    CP = coolprop()
+    state = CP.AbstractState("HEOS", fluid.coolprop_name)
+    return (
+        state.T_critical(),
+        state.p_critical(),
+        state.Ttriple(),
+        state.trivial_keyed_output(CP.iP_triple),
+    )
 
 
 @cache
-def _triple_point(fluid: Refrigerant) -> tuple[float, float]:
-    state = CP.AbstractState("HEOS", fluid.coolprop_name)
-    return state.Ttriple(), state.trivial_keyed_output(CP.iP_triple)
+def _cached_constants() -> dict[str, tuple[float, float, float, float]]:
+    """:func:`_computed_constants` of every supported refrigerant, by designation: from the disk
+    cache, else computed and cached (a few milliseconds once CoolProp is imported)."""
+    path = cache_directory() / f"constants-coolprop{COOLPROP_VERSION}.npz"
+    stored = load_arrays(path)
+    if stored is None or any(np.shape(stored.get(name)) != (4,) for name in SUPPORTED):
+        stored = {name: np.array(_computed_constants(f)) for name, f in SUPPORTED.items()}
+        save_arrays(path, stored)
+    return {name: tuple(float(x) for x in stored[name]) for name in SUPPORTED}
+
+
+def _constants(fluid: Refrigerant) -> tuple[float, float, float, float]:
+    found = _cached_constants().get(fluid.designation)
+    return found if found is not None else _computed_constants(fluid)
+
+
+def critical_point(refrigerant: str | Refrigerant) -> tuple[float, float]:
+    """Critical temperature [K] and pressure [Pa] of the refrigerant's equation of state."""
+    return _constants(get_refrigerant(refrigerant))[:2]
 
 
 def triple_point(refrigerant) -> tuple[float, float]:
@@ -132,7 +217,7 @@ def triple_point(refrigerant) -> tuple[float, float]:
     For the blends (R404A, R407C, R410A, R507A) CoolProp gives the lower limit of the
     pseudo-pure equation of state instead.
     """
-    return _triple_point(get_refrigerant(refrigerant))
+    return _constants(get_refrigerant(refrigerant))[2:]
 
 
 def _no_liquid_below(values: np.ndarray, inputs, limit: float) -> np.ndarray:
@@ -150,25 +235,25 @@ def saturation_temperature(refrigerant, pressure, phase: Phase = "dew"):
     (saturated liquid: use it for subcooling). They differ for zeotropic blends. NaN at or above the
     critical pressure, where no saturation exists.
     """
-    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("T",))[0]
+    out = _evaluate(refrigerant, coolprop().PQ_INPUTS, pressure, _quality(phase), ("T",))[0]
     return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
 def saturation_pressure(refrigerant, temperature, phase: Phase = "dew"):
     """Saturation pressure [Pa] at ``temperature`` [K] (dew or bubble point, see above)."""
-    out = _evaluate(refrigerant, CP.QT_INPUTS, _quality(phase), temperature, ("p",))[0]
+    out = _evaluate(refrigerant, coolprop().QT_INPUTS, _quality(phase), temperature, ("p",))[0]
     return _scalar_or_array(_no_liquid_below(out, temperature, triple_point(refrigerant)[0]))
 
 
 def saturated_enthalpy(refrigerant, pressure, phase: Phase = "dew"):
     """Enthalpy [J/kg] of saturated vapour (``"dew"``) or liquid (``"bubble"``) at ``pressure``."""
-    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("hmass",))[0]
+    out = _evaluate(refrigerant, coolprop().PQ_INPUTS, pressure, _quality(phase), ("hmass",))[0]
     return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
 def saturated_entropy(refrigerant, pressure, phase: Phase = "dew"):
     """Entropy [J/(kg K)] of saturated vapour or liquid at ``pressure`` [Pa]."""
-    out = _evaluate(refrigerant, CP.PQ_INPUTS, pressure, _quality(phase), ("smass",))[0]
+    out = _evaluate(refrigerant, coolprop().PQ_INPUTS, pressure, _quality(phase), ("smass",))[0]
     return _scalar_or_array(_no_liquid_below(out, pressure, triple_point(refrigerant)[1]))
 
 
@@ -178,8 +263,8 @@ def latent_heat(refrigerant, temperature):
     For a zeotropic blend the two points sit at different pressures (CoolProp's pseudo-pure
     convention at equal temperature).
     """
-    vapour = _evaluate(refrigerant, CP.QT_INPUTS, 1.0, temperature, ("hmass",))[0]
-    liquid = _evaluate(refrigerant, CP.QT_INPUTS, 0.0, temperature, ("hmass",))[0]
+    vapour = _evaluate(refrigerant, coolprop().QT_INPUTS, 1.0, temperature, ("hmass",))[0]
+    liquid = _evaluate(refrigerant, coolprop().QT_INPUTS, 0.0, temperature, ("hmass",))[0]
     latent = _no_liquid_below(vapour - liquid, temperature, triple_point(refrigerant)[0])
     return _scalar_or_array(latent)
 
@@ -188,22 +273,21 @@ def _single_phase(refrigerant, pressure, temperature, output: str):
     """A single-phase property at (P, T): vapour at or above the dew point, liquid at or below the
     bubble point, supercritical fluid above the critical pressure; NaN in between."""
     fluid = get_refrigerant(refrigerant)
+    pt = coolprop().PT_INPUTS
     p, t = np.broadcast_arrays(np.asarray(pressure, float), np.asarray(temperature, float))
     t_dew = np.asarray(saturation_temperature(fluid, p, "dew"))
     out = np.full(p.shape, np.nan)
     supercritical = p >= fluid.critical_pressure
     if supercritical.any():
-        out[supercritical] = _evaluate(
-            fluid, CP.PT_INPUTS, p[supercritical], t[supercritical], (output,)
-        )[0]
+        out[supercritical] = _evaluate(fluid, pt, p[supercritical], t[supercritical], (output,))[0]
     vapour = ~supercritical & (t >= t_dew)
     if vapour.any():
-        out[vapour] = _evaluate(fluid, CP.PT_INPUTS, p[vapour], t[vapour], (output,), "gas")[0]
+        out[vapour] = _evaluate(fluid, pt, p[vapour], t[vapour], (output,), "gas")[0]
     liquid = ~supercritical & (t < t_dew)
     if liquid.any():
         t_bubble = np.asarray(saturation_temperature(fluid, p, "bubble"))
         below = liquid & (t <= t_bubble)
-        out[below] = _evaluate(fluid, CP.PT_INPUTS, p[below], t[below], (output,), "liquid")[0]
+        out[below] = _evaluate(fluid, pt, p[below], t[below], (output,), "liquid")[0]
     return _scalar_or_array(out)
 
 
@@ -232,7 +316,7 @@ def isentropic_state(refrigerant, pressure, entropy_):
     Used for the isentropic compressor discharge state 2s from the suction entropy s1. Works in the
     two-phase region too (wet compression of a dry fluid).
     """
-    out = _evaluate(refrigerant, CP.PSmass_INPUTS, pressure, entropy_, ("T", "hmass"))
+    out = _evaluate(refrigerant, coolprop().PSmass_INPUTS, pressure, entropy_, ("T", "hmass"))
     return _scalar_or_array(out[0]), _scalar_or_array(out[1])
 
 

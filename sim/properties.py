@@ -26,10 +26,9 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from CoolProp.HumidAirProp import HAPropsSI
 
 from rimewatch.physics import refrigerant as exact
-from rimewatch.physics.refrigerant import get_refrigerant
+from rimewatch.physics.refrigerant import get_refrigerant, humid_air_function
 
 try:  # the single switch between the table-based and the exact property paths
     from rimewatch.physics import fast as properties
@@ -269,6 +268,7 @@ class AirTables:
 @lru_cache(maxsize=8)
 def air_tables(pressure: float = 101325.0) -> AirTables:
     """Moist-air tables at total pressure [Pa], from CoolProp ``HAPropsSI`` [1]."""
+    HAPropsSI = humid_air_function()
     t = AIR_GRID.values()
     p = np.full_like(t, pressure)
     zero, probe, one = np.zeros_like(t), np.full_like(t, _W_PROBE), np.ones_like(t)
