@@ -37,10 +37,16 @@ from functools import lru_cache
 
 import numpy as np
 import pandas as pd
-from CoolProp.HumidAirProp import HAPropsSI
 
 from rimewatch.physics import fast
 from rimewatch.physics.compressor import CompressorMap, density_corrected_mass_flow
+from rimewatch.physics.refrigerant import (
+    COOLPROP_VERSION,
+    cache_directory,
+    humid_air_function,
+    load_arrays,
+    save_arrays,
+)
 
 STANDARD_PRESSURE = 101325.0  # Pa
 WATTS_PER_BTU_PER_HOUR = 1055.05585262 / 3600.0  # International Table Btu, exact
@@ -200,7 +206,9 @@ class MoistAir:
     tables (dry air and liquid water at 0 degC). ``MoistAir.tabulated(p)`` gives the same
     properties from bilinear tables of ``HAPropsSI`` values (0.5 K in temperature, 5 %RH in
     humidity, 0.0025 kg/kg in humidity ratio over -40 to +60 degC), several hundred times faster,
-    for long series; samples outside the tables are computed directly.
+    for long series; samples outside the tables are computed directly. The tables are cached on
+    disk beside the refrigerant tables, keyed by the CoolProp version, the table layout and the
+    pressure in whole pascals.
     """
 
     def __init__(self, pressure=STANDARD_PRESSURE):
@@ -218,6 +226,7 @@ class MoistAir:
         out = np.full(a.shape, np.nan)
         good = np.isfinite(a) & np.isfinite(b)
         if good.any():
+            HAPropsSI = humid_air_function()
             values = HAPropsSI(output, name1, a[good], name2, b[good], "P", self.pressure)
             out[good] = np.where(np.isfinite(values), values, np.nan)
         return out
@@ -322,19 +331,43 @@ class _TabulatedMoistAir(MoistAir):
     TEMPERATURE = _Grid(233.15, 0.5, 201)  # -40 .. +60 degC [K]
     RELATIVE_HUMIDITY = _Grid(0.0, 0.05, 21)  # [-]
     HUMIDITY_RATIO = _Grid(0.0, 0.0025, 21)  # [kg/kg]
+    LAYOUT = 1  # bump when the grids above change, so cached tables are rebuilt
 
-    def __init__(self, pressure):
+    def __init__(self, pressure: int):
+        """Tables at ``pressure`` [Pa], a whole number (the cache key)."""
         super().__init__(pressure)
         self._exact = MoistAir(pressure)
+        tables = self._cached_tables()
+        self._w_table = tables["w"]
+        self._w_cells = _bilinear_cells(self._w_table)
+        self._h_cells = _bilinear_cells(tables["h"])
+        volume_cells = _bilinear_cells(tables["v"])
+        self._h_v_cells = np.vstack([self._h_cells, volume_cells])
+        self._w_lines: dict[float, np.ndarray] = {}
+
+    def _computed_tables(self) -> dict[str, np.ndarray]:
+        """``HAPropsSI`` values on the grids: ``w`` = W(T, RH), ``h`` = h(T, W), ``v`` =
+        v_da(T, W), each (temperatures, humidities)."""
         t = self.TEMPERATURE.values()
         t_rh = np.meshgrid(t, self.RELATIVE_HUMIDITY.values(), indexing="ij")
         t_w = np.meshgrid(t, self.HUMIDITY_RATIO.values(), indexing="ij")
-        self._w_table = self._exact.humidity_ratio(*t_rh)
-        self._w_cells = _bilinear_cells(self._w_table)
-        self._h_cells = _bilinear_cells(self._exact.enthalpy(*t_w))
-        volume_cells = _bilinear_cells(self._exact.dry_air_volume(*t_w))
-        self._h_v_cells = np.vstack([self._h_cells, volume_cells])
-        self._w_lines: dict[float, np.ndarray] = {}
+        return {
+            "w": self._exact.humidity_ratio(*t_rh),
+            "h": self._exact.enthalpy(*t_w),
+            "v": self._exact.dry_air_volume(*t_w),
+        }
+
+    def _cached_tables(self) -> dict[str, np.ndarray]:
+        """:meth:`_computed_tables` from the disk cache, else computed and cached."""
+        name = f"moist-air-{self.pressure:.0f}Pa-coolprop{COOLPROP_VERSION}-layout{self.LAYOUT}"
+        path = cache_directory() / f"{name}.npz"
+        tables = load_arrays(path)
+        t, rh, w = self.TEMPERATURE.nodes, self.RELATIVE_HUMIDITY.nodes, self.HUMIDITY_RATIO.nodes
+        shapes = {"w": (t, rh), "h": (t, w), "v": (t, w)}
+        if tables is None or any(np.shape(tables.get(k)) != v for k, v in shapes.items()):
+            tables = self._computed_tables()
+            save_arrays(path, tables)
+        return tables
 
     # ---- lookups at located temperatures ----
 
