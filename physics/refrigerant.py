@@ -29,6 +29,7 @@ import importlib.metadata
 import os
 import tempfile
 import threading
+import warnings
 import zipfile
 from functools import cache
 from pathlib import Path
@@ -110,11 +111,27 @@ def load_arrays(path: Path) -> dict[str, np.ndarray] | None:
 
 
 def save_arrays(path: Path, arrays: dict[str, np.ndarray]) -> None:
-    """Write a cache file atomically, so a concurrent reader never sees half a file."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with tempfile.NamedTemporaryFile(dir=path.parent, suffix=".npz", delete=False) as handle:
-        np.savez(handle, **arrays)
-    os.replace(handle.name, path)
+    """Write a cache file atomically, so a concurrent reader never sees half a file.
+
+    A folder that cannot be written (read-only home, full disk) costs a warning, not the result:
+    the caller goes on with the arrays it computed, and the next process computes them again.
+    """
+    temporary = None
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        with tempfile.NamedTemporaryFile(dir=path.parent, suffix=".npz", delete=False) as handle:
+            temporary = Path(handle.name)
+            np.savez(handle, **arrays)
+        os.replace(temporary, path)
+    except OSError as exc:
+        if temporary is not None:
+            temporary.unlink(missing_ok=True)
+        warnings.warn(
+            f"property cache not written ({exc}); computing without it. Set RIMEWATCH_CACHE_DIR "
+            "to a writable folder to keep the tables between runs.",
+            RuntimeWarning,
+            stacklevel=2,
+        )
 
 
 _local = threading.local()

@@ -1,7 +1,7 @@
 """The ``rimewatch`` command line: one click group, one module per subcommand.
 
 Subcommands are imported only when called, so ``rimewatch --help`` stays fast even though the
-commands themselves pull in CoolProp, pandas and SQLAlchemy.
+commands themselves pull in pandas, SQLAlchemy and, where they compute properties, CoolProp.
 """
 
 from __future__ import annotations

@@ -704,6 +704,7 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
     from rimewatch.commands._store_common import load_site_file, open_database
+    from rimewatch.physics.refrigerant import humid_air_function
     from rimewatch.site_sync import apply_site
 
     console = Console(highlight=False)
@@ -749,6 +750,7 @@ def demo(out_dir: Path, days: float, seed: int) -> None:
 
         for module in PRELOADED_MODULES:
             importlib.import_module(module)
+        humid_air_function()  # CoolProp itself (imported on first use) also before the fork
         advance("simulating")
         # leaving the block (done, failed or interrupted) terminates the workers
         with context.Pool(workers, _start_worker, (queue,)) as pool:

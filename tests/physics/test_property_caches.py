@@ -133,3 +133,20 @@ def test_analysis_with_warm_caches_never_imports_coolprop(tmp_path):
         "moist",
     ]
     assert _python(code, cache).stdout.split() == [minutes, "False"]
+
+
+def test_an_unwritable_cache_folder_costs_a_warning_not_the_values(tmp_path):
+    blocker = tmp_path / "not-a-folder"
+    blocker.write_text("a file where the cache folder should be")
+    code = (
+        "import warnings\n"
+        "from rimewatch.physics import fast\n"
+        "with warnings.catch_warnings(record=True) as caught:\n"
+        "    warnings.simplefilter('always')\n"
+        "    t = float(fast.saturation_temperature('R134a', 1e6))\n"
+        "print(t, any('property cache not written' in str(w.message) for w in caught))\n"
+    )
+    t_sat, warned = _python(code, blocker).stdout.split()
+    # NIST Webbook (from memory): R134a dew point at 1.0 MPa is 39.4 degC
+    assert float(t_sat) - 273.15 == pytest.approx(39.4, abs=0.1)
+    assert warned == "True"
