@@ -166,6 +166,10 @@ def _covers(wide: str, narrow: str) -> bool:
     return topic_matches(wide, narrow)
 
 
+#: an empty QoS 1 publish here at shutdown proves the broker has read our acknowledgements
+FLUSH_TOPIC_PREFIX = "rimewatch/shutdown"
+
+
 class Ingester:
     """Subscribe to the decoder's topics (and ``extra_filters``) and store what arrives.
 
@@ -189,6 +193,7 @@ class Ingester:
         self.subscribed = threading.Event()
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
         self._stopping = threading.Event()
+        self._disconnected = threading.Event()
         self._session = 0  # counts connections: an ack is only valid on the connection it came on
         self._batches: queue.Queue = queue.Queue(maxsize=2)  # decoded batches awaiting commit
         self._decoder = threading.Thread(target=self._decode_loop, name="rimewatch-decoder")
@@ -253,9 +258,30 @@ class Ingester:
         self._decoder.join(timeout_s)
         self._writer.join(max(end - time.monotonic(), 0.0))
         finished = not self._writer.is_alive()
+        self._flush_acknowledgements(max(end - time.monotonic(), 1.0))
+        self._disconnected.clear()
         self.client.disconnect()
+        # paho reports the disconnect once its DISCONNECT packet is written, after every
+        # acknowledgement queued before it: stopping the network thread earlier would drop them
+        self._disconnected.wait(max(end - time.monotonic(), 1.0))
         self.client.loop_stop()
         return finished
+
+    def _flush_acknowledgements(self, timeout_s: float) -> None:
+        """Return once the broker has read every acknowledgement sent so far.
+
+        Closing a TCP socket that still has unread incoming data (messages the broker keeps
+        sending) resets the connection, and the broker may drop acknowledgements it has not read
+        yet: it would send those messages again. The broker reads a connection in order, so the
+        acknowledgement of one QoS 1 publish of our own proves it has read all before it.
+        """
+        if not self.connected.is_set():
+            return
+        topic = f"{FLUSH_TOPIC_PREFIX}/{self.settings.client_id}"
+        try:
+            self.client.publish(topic, b"", qos=1).wait_for_publish(timeout_s)
+        except (RuntimeError, ValueError) as exc:  # gone meanwhile: the broker redelivers
+            log.warning("could not confirm the last acknowledgements: %s", exc)
 
     # paho callbacks: network thread, never block here
 
@@ -300,6 +326,7 @@ class Ingester:
 
     def _on_disconnect(self, client, userdata, flags, reason_code, properties) -> None:
         self.connected.clear()
+        self._disconnected.set()
         if not self._stopping.is_set():
             log.warning("disconnected from the broker (%s); reconnecting", reason_code)
 
