@@ -199,14 +199,8 @@ def cycle_states(
     Refrigeration, chapter on refrigerant system practices). The condensing and evaporating
     temperatures are dew points, as in AHRI Standard 540 compressor ratings.
     """
-    inputs = _inputs(
-        suction_pressure,
-        discharge_pressure,
-        suction_temp,
-        liquid_temp,
-        discharge_temp,
-        liquid_pressure,
-    )
+    readings = suction_pressure, discharge_pressure, suction_temp, liquid_temp, discharge_temp
+    inputs = _inputs(*readings, liquid_pressure)
     values, flags = _cycle_values(refrigerant, inputs, method)
     frame = pd.DataFrame(
         values.T, index=_first_index(inputs.values()), columns=VALUE_COLUMNS, copy=False
@@ -234,14 +228,8 @@ def cycle_arrays(
     flags : numpy.ndarray of int64
         The flag bits per sample (:func:`describe_flags` reads them).
     """
-    inputs = _inputs(
-        suction_pressure,
-        discharge_pressure,
-        suction_temp,
-        liquid_temp,
-        discharge_temp,
-        liquid_pressure,
-    )
+    readings = suction_pressure, discharge_pressure, suction_temp, liquid_temp, discharge_temp
+    inputs = _inputs(*readings, liquid_pressure)
     values, flags = _cycle_values(refrigerant, inputs, method)
     return dict(zip(VALUE_COLUMNS, values, strict=True)), flags
 
