@@ -11,13 +11,15 @@ Timed, in a fresh process (so its peak memory is the analysis's own): ``analyze_
 over all units with ``--workers`` processes, split into reading (store -> wide frame), physics
 (cycle states and virtual sensors, ``unit_features``), detection (everything else of the
 analysis) and writing events. Beside it, in the same run, two reads of all the judged readings:
-one raw sqlite3 SELECT (a Python tuple per row: the old read's floor) and the store's ADBC read
-(Arrow columns, no Python object per reading). The workers' CPU seconds and the load average
-before the run are printed too: on a shared machine the CPU seconds / workers is the wall clock
-the run would take alone.
+one raw SELECT through the DB-API driver (sqlite3 or psycopg: a Python tuple per row, the old
+read's floor) and the store's ADBC read (Arrow columns, no Python object per reading). The
+workers' CPU seconds and the load average before the run are printed too: on a shared machine the
+CPU seconds / workers is the wall clock the run would take alone.
 
-Usage: .venv/bin/python benchmarks/fleet_analysis.py [--units 1000] [--workers 2] [--db PATH]
-(``--db`` keeps the prepared file for later runs; an existing file with the right units is reused).
+Usage: .venv/bin/python benchmarks/fleet_analysis.py [--units 1000] [--workers 2] [--db PATH|URL]
+(``--db`` keeps the prepared SQLite file for later runs, or names a database by URL, e.g.
+``postgresql+psycopg://postgres@127.0.0.1/fleet`` (an existing, empty database); a database that
+already holds the benchmark's site is reused).
 """
 
 from __future__ import annotations
@@ -26,7 +28,6 @@ import argparse
 import json
 import os
 import resource
-import sqlite3
 import subprocess
 import sys
 import tempfile
@@ -96,7 +97,7 @@ def _template(index: int):
     return block, judged, baseline.to_dict()
 
 
-def prepare(path: Path, n_units: int) -> None:
+def prepare(url: str, n_units: int) -> None:
     from rimewatch.site import parse_site
     from rimewatch.site_sync import apply_site
     from rimewatch.store import active_points, connect, write_readings
@@ -120,7 +121,7 @@ def prepare(path: Path, n_units: int) -> None:
                         for r in roles]}
         )  # fmt: skip
     config = parse_site({"site": {"name": SITE, "timezone": "UTC"}, "units": units})
-    engine = connect(f"sqlite:///{path}")
+    engine = connect(url)
     apply_site(engine, config)
     points: dict[str, dict[str, int]] = {}
     for p in active_points(engine, SITE):
@@ -157,7 +158,7 @@ def _children_cpu_s() -> float:
 
 
 def _analyse_share(args):
-    path, keys = args
+    url, keys = args
     from rimewatch.detect import pipeline
     from rimewatch.detection import Timings, analyze_stored_units, stored_units
     from rimewatch.store import connect
@@ -173,7 +174,7 @@ def _analyse_share(args):
             physics_s[0] += time.perf_counter() - began
 
     pipeline.unit_features = timed_features
-    engine = connect(f"sqlite:///{path}")
+    engine = connect(url)
     units = [u for u in stored_units(engine, site=SITE) if u.info.key in keys]
     timings = Timings()
     cpu_started = time.process_time() + _children_cpu_s()
@@ -190,13 +191,13 @@ def _analyse_share(args):
         events, errors, rss_kb, cpu_s  # fmt: skip
 
 
-def analyse(path: Path, workers: int) -> dict:
+def analyse(url: str, workers: int) -> dict:
     """The timed part (run in a fresh process by main)."""
     from rimewatch.detection import stored_units
     from rimewatch.store import connect
 
-    keys = [u.info.key for u in stored_units(connect(f"sqlite:///{path}"), site=SITE)]
-    shares = [(path, set(keys[i::workers])) for i in range(workers)]
+    keys = [u.info.key for u in stored_units(connect(url), site=SITE)]
+    shares = [(url, set(keys[i::workers])) for i in range(workers)]
     load_before = os.getloadavg()[0]
     started = time.perf_counter()
     with ProcessPoolExecutor(max_workers=workers) as pool:
@@ -219,33 +220,50 @@ def analyse(path: Path, workers: int) -> dict:
     }
 
 
-def raw_read_floor(path: Path) -> tuple[float, int]:
-    """One plain sqlite3 SELECT of every judged reading, streamed: the floor for the store read."""
+def _judged_ms() -> tuple[int, int]:
     start_ms = int((pd.Timestamp(DAY) - pd.Timedelta(WARM_UP)).timestamp() * 1000)
-    end_ms = int(pd.Timestamp(UNTIL).timestamp() * 1000)
+    return start_ms, int(pd.Timestamp(UNTIL).timestamp() * 1000)
+
+
+def raw_read_floor(url: str) -> tuple[float, int]:
+    """One plain SELECT of every judged reading through the DB-API driver (sqlite3, psycopg),
+    streamed: the floor of a read that builds a Python tuple per row."""
+    from rimewatch.store import connect
+
+    engine = connect(url)
+    start_ms, end_ms = _judged_ms()
+    marker = "?" if engine.dialect.paramstyle == "qmark" else "%s"
     began = time.perf_counter()
     count = 0
-    with sqlite3.connect(path) as conn:
-        cursor = conn.execute(
-            "SELECT point_id, ts_ms, value FROM readings WHERE ts_ms >= ? AND ts_ms < ?",
+    raw = engine.raw_connection()
+    try:
+        cursor = raw.cursor()
+        cursor.execute(
+            "SELECT point_id, ts_ms, value FROM readings "
+            f"WHERE ts_ms >= {marker} AND ts_ms < {marker}",
             (start_ms, end_ms),
         )
         while rows := cursor.fetchmany(100_000):
             count += len(rows)
+        cursor.close()
+    finally:
+        raw.close()
     return time.perf_counter() - began, count
 
 
-def adbc_read(path: Path) -> tuple[float, int]:
+def adbc_read(url: str) -> tuple[float, int]:
     """The same readings through the store's ADBC path, 14 points a request (as for a unit)."""
+    from sqlalchemy import text
+
     from rimewatch.store import connect
     from rimewatch.store.columnar import open_columnar
 
-    start_ms = int((pd.Timestamp(DAY) - pd.Timedelta(WARM_UP)).timestamp() * 1000)
-    end_ms = int(pd.Timestamp(UNTIL).timestamp() * 1000)
-    with sqlite3.connect(path) as conn:
-        points = [p for (p,) in conn.execute("SELECT id FROM points ORDER BY id")]
+    engine = connect(url)
+    start_ms, end_ms = _judged_ms()
+    with engine.connect() as conn:
+        points = [p for (p,) in conn.execute(text("SELECT id FROM points ORDER BY id"))]
     began = time.perf_counter()
-    reader = open_columnar(connect(f"sqlite:///{path}"))
+    reader = open_columnar(engine)
     count = 0
     for first in range(0, len(points), 14):
         queries = [
@@ -258,33 +276,61 @@ def adbc_read(path: Path) -> tuple[float, int]:
     return time.perf_counter() - began, count
 
 
+def _prepared_units(url: str) -> int:
+    """Units of the benchmark's site already in the database (0 for a new one)."""
+    from sqlalchemy import text
+
+    from rimewatch.store import connect
+
+    with connect(url).connect() as conn:
+        return conn.execute(
+            text("SELECT count(*) FROM units JOIN sites ON sites.id = units.site_id "
+                 "WHERE sites.name = :site"),
+            {"site": SITE},
+        ).scalar()  # fmt: skip
+
+
+def _clear_events(url: str) -> None:
+    from sqlalchemy import text
+
+    from rimewatch.store import connect
+
+    with connect(url).begin() as conn:
+        for table in ("event_history", "notes", "events"):
+            conn.execute(text(f"DELETE FROM {table}"))
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--units", type=int, default=1000)
     parser.add_argument("--workers", type=int, default=2)
-    parser.add_argument("--db", default=None, help="keep the prepared SQLite file here")
+    parser.add_argument(
+        "--db",
+        default=None,
+        help="keep the prepared SQLite file here, or a database URL (postgresql://...)",
+    )
     parser.add_argument(
         "--phase", default="all", choices=["all", "analyse"], help=argparse.SUPPRESS
     )
     args = parser.parse_args()
     if args.phase == "analyse":
-        print(json.dumps(analyse(Path(args.db), args.workers)))
+        print(json.dumps(analyse(args.db, args.workers)))
         return
     folder = None
-    if args.db:
-        path = Path(args.db)
+    if args.db and "://" in args.db:
+        url = args.db
+    elif args.db:
+        url = f"sqlite:///{Path(args.db).resolve()}"
     else:
         folder = tempfile.TemporaryDirectory()
-        path = Path(folder.name) / "fleet.db"
-    if not path.exists():
-        prepare(path, args.units)
+        url = f"sqlite:///{Path(folder.name) / 'fleet.db'}"
+    if _prepared_units(url) == 0:
+        prepare(url, args.units)
     else:
-        print(f"setup: reusing {path}")
-    with sqlite3.connect(path) as conn:
-        for table in ("event_history", "notes", "events"):
-            conn.execute(f"DELETE FROM {table}")
+        print(f"setup: reusing {url}")
+    _clear_events(url)
     out = subprocess.run(
-        [sys.executable, __file__, "--phase", "analyse", "--db", str(path),
+        [sys.executable, __file__, "--phase", "analyse", "--db", url,
          "--workers", str(args.workers)],
         capture_output=True, text=True, check=False, env={**os.environ},
     )  # fmt: skip
@@ -292,8 +338,8 @@ def main() -> None:
         print(out.stderr)
         raise SystemExit("the timed analysis failed")
     r = json.loads(out.stdout.strip().splitlines()[-1])
-    floor_s, floor_rows = raw_read_floor(path)
-    adbc_s, adbc_rows = adbc_read(path)
+    floor_s, floor_rows = raw_read_floor(url)
+    adbc_s, adbc_rows = adbc_read(url)
     cpu = r["read_s"] + r["physics_s"] + r["detection_s"] + r["write_s"]
     print(f"\n{r['units']} units x 1 day (+3 h warm-up), {args.workers} worker processes")
     print(f"  wall clock                      {r['wall_s']:8.1f} s   (target < 15 s)")
@@ -308,7 +354,8 @@ def main() -> None:
     print(
         f"  load average before the run     {r['load_before']:8.2f}   (other work shares the cores)"
     )
-    print(f"  baseline: raw sqlite3 SELECT of the same {floor_rows:,} readings: {floor_s:.1f} s")
+    driver = "sqlite3" if url.startswith("sqlite") else "psycopg"
+    print(f"  baseline: raw {driver} SELECT of the same {floor_rows:,} readings: {floor_s:.1f} s")
     print(f"  the store's ADBC read of the same {adbc_rows:,} readings: {adbc_s:.1f} s")
     print(
         f"  events written {r['events']}; peak RSS {r['peak_rss_mb_per_worker']:.0f} MB per "
