@@ -78,7 +78,7 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     """
     selected = rows.to_numpy(dtype=bool)
     index = grid.index[selected]
-    sub = _selected_columns(grid, selected)
+    sub = columns_of(grid, selected)
     if not len(index) or not sub or _present(sub, "suction_pressure") is None:
         nan = np.full(len(index), np.nan)
         return _frame(dict.fromkeys((*FEATURES, *DRIVERS), nan), index)
@@ -153,10 +153,11 @@ def unit_features(grid: pd.DataFrame, unit: UnitInfo, rows: pd.Series) -> pd.Dat
     return _frame(out, index)
 
 
-def _selected_columns(grid: pd.DataFrame, selected: np.ndarray) -> dict[str, np.ndarray]:
-    """Column name -> the readings of the selected rows, from one copy of the grid's values."""
-    values = grid.to_numpy(dtype=float).T[:, selected]
-    return dict(zip(grid.columns, values, strict=True))
+def columns_of(frame: pd.DataFrame, rows=slice(None), dtype=float) -> dict[str, np.ndarray]:
+    """Column name -> values of ``rows`` (a slice or boolean mask), as ``dtype``, from one
+    conversion of the whole frame (no Series per column)."""
+    values = frame.to_numpy(dtype=dtype).T[:, rows]
+    return dict(zip(frame.columns.tolist(), values, strict=True))
 
 
 def _present(columns: dict[str, np.ndarray], name: str) -> np.ndarray | None:

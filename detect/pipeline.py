@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from rimewatch.detect import diagnose, events, quality, rules, steady
-from rimewatch.detect.features import unit_features
+from rimewatch.detect.features import columns_of, unit_features
 from rimewatch.detect.findings import HourlyFindings
 from rimewatch.detect.reference import EXTRAPOLATION_WIDENING, Baseline, fit_baseline
 from rimewatch.detect.unit import UnitInfo
@@ -100,15 +100,10 @@ def prepare(frame: pd.DataFrame, unit: UnitInfo, since=None, until=None) -> Prep
     return Prepared(grid.iloc[first:], hours, running.iloc[first:], features, steady_mask, checks)
 
 
-def _columns(frame: pd.DataFrame, rows=slice(None)) -> dict[str, np.ndarray]:
-    """Name -> values of ``rows`` of a float frame (no Series per column)."""
-    return dict(zip(frame.columns.tolist(), frame.to_numpy(dtype=float).T[:, rows], strict=True))
-
-
 def _steady_signals(grid: pd.DataFrame, running: pd.Series, features: pd.DataFrame) -> pd.DataFrame:
     """The steady test's signals on the running samples (the rows of ``features``): the
     feature where there is one, else the reading."""
-    own, read = _columns(features), _columns(grid, running.to_numpy(dtype=bool))
+    own, read = columns_of(features), columns_of(grid, running.to_numpy(dtype=bool))
     names = [name for name in steady.STEADY_LIMITS_K if name in own or name in read]
     columns = [own[name] if name in own else read[name] for name in names]
     values = np.column_stack(columns) if columns else np.empty((len(features), 0))
@@ -136,7 +131,7 @@ def _steady_columns(prepared: Prepared) -> tuple[dict[str, np.ndarray], np.ndarr
     """(feature -> values of the steady samples, their hour slots in ``prepared.hours``)."""
     steady = prepared.steady.to_numpy(dtype=bool)
     slot = quality.hour_slots(prepared.features.index, prepared.hours)[steady]
-    return _columns(prepared.features, steady), slot
+    return columns_of(prepared.features, steady), slot
 
 
 def _residuals(prepared: Prepared, unit: UnitInfo, baseline: Baseline | None):

@@ -36,6 +36,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from rimewatch.detect.features import columns_of
 from rimewatch.detect.findings import Finding, HourlyFindings, finding_key
 from rimewatch.detect.steady import window_count
 from rimewatch.detect.unit import UnitInfo
@@ -201,7 +202,7 @@ def check_quality(
         implausible-combination checks); optional.
     """
     out = HourlyFindings.empty(hours)
-    columns, blanked_columns = _columns(grid), _columns(blanked, dtype=bool)
+    columns, blanked_columns = columns_of(grid), columns_of(blanked, dtype=bool)
     points = [c for c in columns if c in SERVICE_RANGES and c != "compressor_status"]
     values = np.array([columns[role] for role in points]).reshape(len(points), len(grid))
     bad = np.array([blanked_columns[role] for role in points], dtype=bool).reshape(values.shape)
@@ -255,11 +256,6 @@ def check_quality(
     if features is not None and steady_mask is not None:
         _check_implausible(out, features, steady_mask, hours)
     return out
-
-
-def _columns(frame: pd.DataFrame, dtype=float) -> dict[str, np.ndarray]:
-    """Every column of a frame as an array of ``dtype`` (one conversion of the whole frame)."""
-    return dict(zip(frame.columns.tolist(), frame.to_numpy(dtype=dtype).T, strict=True))
 
 
 def _hourly_counter(slot: np.ndarray, n_hours: int):
@@ -440,7 +436,7 @@ def _check_implausible(out, features, steady_mask, hours) -> None:
         steady_mask = steady_mask.reindex(features.index, fill_value=False)
     steady = steady_mask.to_numpy(dtype=bool)
     slot = hour_slots(features.index, hours)[steady]
-    columns = _columns(features)
+    columns = columns_of(features)
 
     def column(name):
         return columns[name][steady]

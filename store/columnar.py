@@ -29,7 +29,7 @@ import numpy as np
 from sqlalchemy import Engine
 
 #: Arrow format string of a column -> numpy dtype
-_DTYPES = {"l": np.int64, "g": np.float64, "i": np.int32, "f": np.float32}
+_DTYPES = {"l": np.int64, "i": np.int32, "g": np.float64}  # PostgreSQL ids are int4
 
 
 class ColumnarConnection:

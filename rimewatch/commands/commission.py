@@ -234,19 +234,19 @@ def commission(site_file, unit_id, since, csv_file, out_dir, db_url):
         frames = {key: frame[frame.index >= start] for key, frame in frames.items()}
     else:
         from rimewatch.store.catalog import find_unit_id
-        from rimewatch.store.readings import read_unit_frame
+        from rimewatch.store.readings import FrameReader
 
         engine = open_database(db_url)
         end = pd.Timestamp.now(tz="UTC") + pd.Timedelta(days=1)
-        frames = {}
-        for unit in units:
-            key = find_unit_id(engine, config.site.name, unit.id)
+        keys = {unit.id: find_unit_id(engine, config.site.name, unit.id) for unit in units}
+        for unit_id, key in keys.items():
             if key is None:
                 raise click.ClickException(
-                    f"unit {unit.id!r} of site {config.site.name!r} is not in the database: run "
+                    f"unit {unit_id!r} of site {config.site.name!r} is not in the database: run "
                     f"`rimewatch apply {site_file}` and import data, or pass --csv FILE"
                 )
-            frames[unit.id] = read_unit_frame(engine, key, start, end)
+        with FrameReader(engine) as reader:
+            frames = {unit_id: reader.read(key, start, end) for unit_id, key in keys.items()}
     out = Path(out_dir)
     try:
         out.mkdir(parents=True, exist_ok=True)
