@@ -65,42 +65,14 @@ class HourlyFindings:
         """1 found, 0 checked and not found, NaN not checked (hours x keys)."""
         return pd.DataFrame(self.columns, index=self.hours)
 
-    def set(self, key: str, hours_checked, hours_found: dict) -> None:
-        """Record a check: the hours evaluated, and hour -> Finding for the hours found.
-
-        ``hours_checked`` holds hours, or is a boolean mask over ``self.hours``.
-        """
-        column = np.full(len(self.hours), np.nan)
-        if isinstance(hours_checked, np.ndarray) and hours_checked.dtype == bool:
-            column[hours_checked] = 0.0
-        else:
-            column[self._positions(hours_checked)] = 0.0
-        for hour, finding in hours_found.items():
-            if hour in self.hours:  # hours outside the judged period are ignored
-                column[self.hours.get_loc(hour)] = 1.0
-                self.found[(key, hour)] = finding
-        self.columns[key] = column
-
     def set_positions(self, key: str, checked: np.ndarray, found: dict[int, Finding]) -> None:
-        """:meth:`set` by position in ``hours``: a boolean mask of the hours checked, and
-        position -> Finding for the hours found."""
+        """Record a check: a boolean mask of the hours checked (over ``hours``), and position in
+        ``hours`` -> Finding for the hours found."""
         column = np.where(checked, 0.0, np.nan)
         for k, finding in found.items():
             column[k] = 1.0
             self.found[(key, self.hours[k])] = finding
         self.columns[key] = column
-
-    def _positions(self, stamps) -> np.ndarray:
-        """Positions in ``hours`` of those of ``stamps`` it holds (a sorted search, no pandas)."""
-        if not isinstance(stamps, pd.DatetimeIndex):
-            stamps = pd.DatetimeIndex(stamps)
-        if len(stamps) == 0 or len(self.hours) == 0:
-            return np.empty(0, dtype=np.intp)
-        if stamps.tz != self.hours.tz or not self.hours.is_monotonic_increasing:
-            return np.flatnonzero(self.hours.isin(stamps))
-        mine, theirs = self.hours.asi8, stamps.as_unit(self.hours.unit).asi8
-        where = np.minimum(np.searchsorted(mine, theirs), len(mine) - 1)
-        return where[mine[where] == theirs]
 
     def merge(self, other: HourlyFindings) -> None:
         same_hours = other.hours.equals(self.hours)

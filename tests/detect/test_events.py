@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 from rimewatch.detect.events import cleared_after, derive_events
@@ -13,14 +14,16 @@ HOURS = pd.date_range("2026-07-08", periods=30, freq="1h", tz="UTC")
 def _findings(pattern: str, code="low_charge", samples=30, ranking=()):
     """pattern: one character per hour: F found, . checked not found, ' ' not checked."""
     findings = HourlyFindings.empty(HOURS)
-    checked = [h for h, c in zip(HOURS, pattern, strict=False) if c in "F."]
-    found = {
-        h: Finding(0.3, 0.8, "test", samples, ranking)
-        for h, c in zip(HOURS, pattern, strict=False)
-        if c == "F"
-    }
-    findings.set(code, checked, found)
+    checked = np.array([c in "F." for c in pattern.ljust(len(HOURS))])
+    finding = Finding(0.3, 0.8, "test", samples, ranking)
+    found = {k: finding for k, c in enumerate(pattern) if c == "F"}
+    findings.set_positions(code, checked, found)
     return findings
+
+
+def _first(n: int) -> np.ndarray:
+    """Checked mask: the first ``n`` hours."""
+    return np.arange(len(HOURS)) < n
 
 
 def test_two_found_hours_are_not_an_event():
@@ -63,15 +66,13 @@ def test_refrigerant_codes_that_alternate_are_one_event_with_the_leading_code():
     findings = HourlyFindings.empty(HOURS)
     ranking_oc = (("overcharge", 0.6), ("non_condensables", 0.4))
     ranking_nc = (("non_condensables", 0.55), ("overcharge", 0.45))
-    findings.set(
-        "overcharge",
-        HOURS[:6],
-        {h: Finding(0.4, 0.6, "", 30, ranking_oc) for h in HOURS[[0, 2, 4]]},
+    findings.set_positions(
+        "overcharge", _first(6), {k: Finding(0.4, 0.6, "", 30, ranking_oc) for k in (0, 2, 4)}
     )
-    findings.set(
+    findings.set_positions(
         "non_condensables",
-        HOURS[:6],
-        {h: Finding(0.4, 0.55, "", 30, ranking_nc) for h in HOURS[[1, 3, 5]]},
+        _first(6),
+        {k: Finding(0.4, 0.55, "", 30, ranking_nc) for k in (1, 3, 5)},
     )
     (event,) = derive_events("u", findings)
     assert event.code == "overcharge"  # 0.6+0.45+0.6 > 0.4+0.55+0.4 over the first three hours
@@ -92,10 +93,10 @@ def test_sensor_findings_are_separate_events_per_point_and_kind():
 def test_event_impact_is_the_recent_one():
     findings = HourlyFindings.empty(HOURS)
     found = {
-        h: Finding(0.3, 0.8, "", 30, (), {"capacity_loss_pct": float(k), "cost_per_day": 0.1 * k})
-        for k, h in enumerate(HOURS[:20])
+        k: Finding(0.3, 0.8, "", 30, (), {"capacity_loss_pct": float(k), "cost_per_day": 0.1 * k})
+        for k in range(20)
     }
-    findings.set("low_charge", HOURS[:20], found)
+    findings.set_positions("low_charge", _first(20), found)
     (event,) = derive_events("u", findings)
     # a growing fault: the median of the last six hours (14..19), not of all twenty
     assert event.impact["capacity_loss_pct"] == 16.5
