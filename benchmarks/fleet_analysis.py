@@ -158,10 +158,10 @@ def _children_cpu_s() -> float:
 
 
 def _analyse_share(args):
-    url, keys = args
+    url, units = args
     from rimewatch.detect import pipeline
-    from rimewatch.detection import Timings, analyze_stored_units, stored_units
-    from rimewatch.store import connect
+    from rimewatch.detect.pipeline import DEFAULT_TARIFF_PER_KWH
+    from rimewatch.detection import analyze_share
 
     physics_s = [0.0]
     original = pipeline.unit_features
@@ -174,12 +174,9 @@ def _analyse_share(args):
             physics_s[0] += time.perf_counter() - began
 
     pipeline.unit_features = timed_features
-    engine = connect(url)
-    units = [u for u in stored_units(engine, site=SITE) if u.info.key in keys]
-    timings = Timings()
     cpu_started = time.process_time() + _children_cpu_s()
-    results = analyze_stored_units(
-        engine, units, pd.Timestamp(DAY), pd.Timestamp(UNTIL), timings=timings
+    results, timings = analyze_share(
+        url, units, pd.Timestamp(DAY), pd.Timestamp(UNTIL), DEFAULT_TARIFF_PER_KWH
     )
     errors = [r.error for r in results if r.error]
     events = sum(len(r.events) for r in results)
@@ -196,8 +193,8 @@ def analyse(url: str, workers: int) -> dict:
     from rimewatch.detection import stored_units
     from rimewatch.store import connect
 
-    keys = [u.info.key for u in stored_units(connect(url), site=SITE)]
-    shares = [(url, set(keys[i::workers])) for i in range(workers)]
+    units = stored_units(connect(url), site=SITE)
+    shares = [(url, units[i::workers]) for i in range(workers)]
     load_before = os.getloadavg()[0]
     started = time.perf_counter()
     with ProcessPoolExecutor(max_workers=workers) as pool:
@@ -205,7 +202,7 @@ def analyse(url: str, workers: int) -> dict:
     wall = time.perf_counter() - started
     parent_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     return {
-        "units": len(keys),
+        "units": len(units),
         "wall_s": wall,
         "read_s": sum(p[0] for p in parts),
         "physics_s": sum(p[1] for p in parts),
